@@ -118,7 +118,9 @@ def polynomial_roots_modulus(poly: np.ndarray) -> np.ndarray:
 
 
 def intercept_to_mean(intercept: float, spec: ModelSpec, params: Mapping[str, float]) -> float:
-    """Convert an intercept ``c`` in ``phi(B)Phi(B^m) w_t = c + ...`` to ``mu = c / (phi(1)Phi(1))``.
+    """Convert an intercept to the mean of the differenced series.
+
+    The intercept ``c`` of ``phi(B)Phi(B^m) w_t = c + ...`` gives ``mu = c / (phi(1)Phi(1))``.
 
     Raises
     ------
@@ -132,7 +134,7 @@ def intercept_to_mean(intercept: float, spec: ModelSpec, params: Mapping[str, fl
 
 
 def mean_to_intercept(mu: float, spec: ModelSpec, params: Mapping[str, float]) -> float:
-    """Convert ``mu`` to the intercept ``c = mu * phi(1) Phi(1)``; inverse of :func:`intercept_to_mean`."""
+    """Convert ``mu`` to the intercept ``c = mu phi(1) Phi(1)``; see :func:`intercept_to_mean`."""
     return mu * float(np.sum(ar_polynomial(spec, params)))
 
 

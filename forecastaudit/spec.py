@@ -256,8 +256,8 @@ class ModelSpec:
 
         Examples
         --------
-        >>> ModelSpec.parse("ARIMA(1,0,0) +mean")
-        ModelSpec(order=(1, 0, 0), seasonal=(0, 0, 0), period=None, mean=True, transform=None, exog=())
+        >>> ModelSpec.parse("ARIMA(1,0,0) +mean").mean
+        True
         """
         if not isinstance(text, str):
             raise SpecError(f"A model text must be a string, got {type(text).__name__}.")

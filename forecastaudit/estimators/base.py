@@ -1,0 +1,494 @@
+"""The estimator protocol: what every adapter declares and returns.
+
+An adapter reads top to bottom as "translate the spec -> call the library -> translate the
+result". The shared work (availability, support checks from declared capabilities, timing,
+warning and output capture, turning exceptions into a failed estimate) lives here, once, in
+:meth:`EstimatorAdapter.fit`; adapters implement only :meth:`EstimatorAdapter._fit`.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import importlib
+import importlib.metadata
+import io
+import math
+import time
+import traceback
+import warnings
+from abc import ABC, abstractmethod
+from dataclasses import dataclass, field
+from typing import Any, ClassVar, Literal
+
+import numpy as np
+
+from ..conventions import coefficient_names, information_criteria, parameter_names
+from ..errors import EstimatorError
+from ..spec import ModelSpec
+
+__all__ = [
+    "Capabilities",
+    "CapturedWarning",
+    "Estimate",
+    "EstimatorAdapter",
+    "FitOutput",
+    "available_estimators",
+    "get_adapter",
+    "register_estimator",
+]
+
+Status = Literal["ok", "failed", "unavailable", "unsupported"]
+
+
+@dataclass(frozen=True)
+class Capabilities:
+    """What an estimator can fit, declared as data.
+
+    Attributes
+    ----------
+    mean_differences : frozenset of int
+        Values of d + D for which the adapter can estimate ``mu`` (the mean of the
+        differenced series). Empty when it cannot fit a mean at all.
+    drift : bool
+        Whether a drift (a mean with one difference) is available.
+    native_transform : bool
+        Whether the library can apply a Box-Cox/log transform itself (forecastaudit
+        transforms once before any estimator, so this is informational).
+    exog : bool
+        Whether exogenous regressors are accepted.
+    order_search : bool
+        Whether the library offers an automatic order search.
+    intervals : bool
+        Whether the library gives forecast intervals.
+    """
+
+    mean_differences: frozenset[int] = frozenset()
+    drift: bool = False
+    native_transform: bool = False
+    exog: bool = False
+    order_search: bool = False
+    intervals: bool = True
+
+    def to_dict(self) -> dict[str, Any]:
+        """JSON-ready form."""
+        return {
+            "mean_differences": sorted(self.mean_differences),
+            "drift": self.drift,
+            "native_transform": self.native_transform,
+            "exog": self.exog,
+            "order_search": self.order_search,
+            "intervals": self.intervals,
+        }
+
+
+@dataclass(frozen=True)
+class CapturedWarning:
+    """A warning an estimator raised during the fit, kept for the record."""
+
+    category: str
+    message: str
+    source: str
+
+    def to_dict(self) -> dict[str, str]:
+        """JSON-ready form."""
+        return {"category": self.category, "message": self.message, "source": self.source}
+
+
+@dataclass
+class FitOutput:
+    """What an adapter's ``_fit`` hands back, already in the canonical convention.
+
+    Attributes
+    ----------
+    params : dict
+        Canonical coefficients (``coefficient_names(spec)``), without sigma2.
+    native_params : dict
+        The library's own names and values, untouched.
+    sigma2_reported : float
+        The innovation variance as the library reports it.
+    sigma2_definition : str
+        What the reported variance is (``"maximum likelihood"`` or the divisor used).
+    sigma2_ml : float
+        The maximum-likelihood variance, converted where the library reports another one.
+    loglike : float
+        The log-likelihood as the library reports it.
+    loglike_definition : str
+        How the library defines it (initialisation, burn-in, constants, which n).
+    n_used : int
+        Observations the library's criteria count.
+    k_counted : int
+        Parameters the library's criteria count.
+    criteria : dict
+        The library's own ``aic``, ``aicc``, ``bic`` (NaN where not offered).
+    converged : bool or None
+        The optimiser's own verdict (None when the library gives none).
+    optimizer : dict
+        The optimiser's message, code, iterations, as the library reports them.
+    options : dict
+        Every option used: those set from the spec and the library defaults, resolved.
+    notes : list of str
+        Conversions made on the way to the canonical convention, in plain words.
+    fitted_model : str
+        The model actually fitted, in our text form, when it differs from the spec.
+    overridden_defaults : dict
+        Library defaults that the spec overrode, with the default's value, e.g.
+        ``{"with_intercept": True}`` when the library would have added a constant.
+    native : object
+        The library's result object (kept in memory only, never written to a record).
+    """
+
+    params: dict[str, float]
+    native_params: dict[str, float]
+    sigma2_reported: float
+    sigma2_definition: str
+    sigma2_ml: float
+    loglike: float
+    loglike_definition: str
+    n_used: int
+    k_counted: int
+    criteria: dict[str, float]
+    converged: bool | None
+    optimizer: dict[str, Any]
+    options: dict[str, Any]
+    notes: list[str] = field(default_factory=list)
+    fitted_model: str | None = None
+    overridden_defaults: dict[str, Any] = field(default_factory=dict)
+    native: Any = None
+
+
+@dataclass
+class Estimate:
+    """One estimator's fit of the spec, in the canonical convention, with its native output.
+
+    Attributes
+    ----------
+    key : str
+        The estimator key, e.g. ``"statsmodels-sarimax"``.
+    engine : str
+        The computational engine (lineage). Wrappers of one engine share it and count once
+        as independent evidence.
+    package, version : str
+        The distribution that was called and its installed version.
+    status : {"ok", "failed", "unavailable", "unsupported"}
+        ``ok``: fitted. ``failed``: the library raised or returned nothing usable.
+        ``unavailable``: the package is not installed. ``unsupported``: the library cannot
+        fit this spec (reason given); nothing was fitted.
+    reason : str
+        Why the status is not ``ok`` (empty when it is).
+    params : dict
+        Canonical parameters including ``sigma2`` (the maximum-likelihood variance).
+    criteria : dict
+        ``aic``, ``aicc``, ``bic`` recomputed on the canonical definition from the library's
+        own log-likelihood, with k = coefficients + 1 and n = n_w.
+    seconds : float
+        Wall time of the fit.
+    warnings : list of CapturedWarning
+        Every warning raised during the fit (none are shown or swallowed).
+    output : str
+        Anything the library printed during the fit.
+    """
+
+    key: str
+    engine: str
+    package: str
+    version: str | None
+    status: Status
+    reason: str = ""
+    spec: ModelSpec | None = None
+    params: dict[str, float] = field(default_factory=dict)
+    native_params: dict[str, float] = field(default_factory=dict)
+    sigma2_reported: float = math.nan
+    sigma2_definition: str = ""
+    loglike_native: float = math.nan
+    loglike_definition: str = ""
+    n_used_native: int | None = None
+    k_counted_native: int | None = None
+    criteria_native: dict[str, float] = field(default_factory=dict)
+    criteria: dict[str, float] = field(default_factory=dict)
+    n_w: int | None = None
+    k: int | None = None
+    converged: bool | None = None
+    optimizer: dict[str, Any] = field(default_factory=dict)
+    options: dict[str, Any] = field(default_factory=dict)
+    notes: list[str] = field(default_factory=list)
+    fitted_model: str | None = None
+    overridden_defaults: dict[str, Any] = field(default_factory=dict)
+    warnings: list[CapturedWarning] = field(default_factory=list)
+    output: str = ""
+    seconds: float = 0.0
+    native: Any = field(default=None, repr=False, compare=False)
+
+    @property
+    def ok(self) -> bool:
+        """True when the estimator produced an estimate."""
+        return self.status == "ok"
+
+    @property
+    def sigma2(self) -> float:
+        """The maximum-likelihood innovation variance (NaN when not fitted)."""
+        return self.params.get("sigma2", math.nan)
+
+    def to_dict(self) -> dict[str, Any]:
+        """JSON-ready form (the native result object is left out)."""
+        return {
+            "key": self.key,
+            "engine": self.engine,
+            "package": self.package,
+            "version": self.version,
+            "status": self.status,
+            "reason": self.reason,
+            "params": dict(self.params),
+            "native_params": dict(self.native_params),
+            "sigma2_reported": self.sigma2_reported,
+            "sigma2_definition": self.sigma2_definition,
+            "loglike_native": self.loglike_native,
+            "loglike_definition": self.loglike_definition,
+            "n_used_native": self.n_used_native,
+            "k_counted_native": self.k_counted_native,
+            "criteria_native": dict(self.criteria_native),
+            "criteria": dict(self.criteria),
+            "n_w": self.n_w,
+            "k": self.k,
+            "converged": self.converged,
+            "optimizer": _plain(self.optimizer),
+            "options": _plain(self.options),
+            "notes": list(self.notes),
+            "fitted_model": self.fitted_model,
+            "overridden_defaults": _plain(self.overridden_defaults),
+            "warnings": [w.to_dict() for w in self.warnings],
+            "output": self.output,
+            "seconds": self.seconds,
+        }
+
+
+def _plain(value: Any) -> Any:
+    """Turn numpy scalars, arrays and tuples into JSON-ready Python values."""
+    if isinstance(value, dict):
+        return {str(k): _plain(v) for k, v in value.items()}
+    if isinstance(value, list | tuple):
+        return [_plain(v) for v in value]
+    if isinstance(value, np.ndarray):
+        return _plain(value.tolist())
+    if isinstance(value, np.bool_):
+        return bool(value)
+    if isinstance(value, np.integer):
+        return int(value)
+    if isinstance(value, np.floating):
+        return float(value)
+    if value is None or isinstance(value, bool | int | float | str):
+        return value
+    return repr(value)
+
+
+class EstimatorAdapter(ABC):
+    """Base class of the estimator adapters.
+
+    Subclasses set the class attributes and implement :meth:`_fit`. Everything else
+    (availability, support checks against the declared capabilities, timing, capture of
+    warnings and printed output, conversion of exceptions into a failed estimate) is done
+    here once.
+
+    Attributes
+    ----------
+    key : str
+        Estimator key used in reports and by callers.
+    engine : str
+        Engine lineage; wrappers of the same engine share it.
+    package : str
+        Distribution name whose version is recorded.
+    module : str
+        Module imported to check availability.
+    description : str
+        One line: which class of which library is called.
+    capabilities : Capabilities
+        What the estimator can fit.
+    """
+
+    key: ClassVar[str]
+    engine: ClassVar[str]
+    package: ClassVar[str]
+    module: ClassVar[str]
+    description: ClassVar[str]
+    capabilities: ClassVar[Capabilities]
+
+    # ------------------------------------------------------------------ declared checks
+    @classmethod
+    def version(cls) -> str | None:
+        """Installed version of the package, or None when it is not installed."""
+        try:
+            return importlib.metadata.version(cls.package)
+        except importlib.metadata.PackageNotFoundError:
+            return None
+
+    @classmethod
+    def availability(cls) -> str | None:
+        """None when the library imports; otherwise the reason it does not."""
+        try:
+            importlib.import_module(cls.module)
+        except Exception as exc:  # any import failure makes the estimator unavailable
+            return f"{cls.module} could not be imported ({type(exc).__name__}: {exc})"
+        return None
+
+    @classmethod
+    def unsupported_reason(cls, spec: ModelSpec) -> str | None:
+        """None when the declared capabilities cover ``spec``; otherwise why not."""
+        caps = cls.capabilities
+        if spec.mean and spec.n_differences not in caps.mean_differences:
+            return (
+                f"{cls.description} cannot estimate a mean of the differenced series with "
+                f"d + D = {spec.n_differences} (it can with d + D in "
+                f"{sorted(caps.mean_differences) or 'no case'})."
+            )
+        if spec.exog and not caps.exog:
+            return f"{cls.description} does not take exogenous regressors."
+        return None
+
+    # ------------------------------------------------------------------ the fit
+    def fit(self, y: np.ndarray, spec: ModelSpec) -> Estimate:
+        """Fit ``spec`` to ``y`` (already transformed) and return the canonical estimate.
+
+        Never raises for a library failure: the estimate's status says what happened.
+        """
+        base = {
+            "key": self.key,
+            "engine": self.engine,
+            "package": self.package,
+            "version": self.version(),
+            "spec": spec,
+        }
+        missing = self.availability()
+        if missing is not None:
+            return Estimate(**base, status="unavailable", reason=missing)
+        unsupported = self.unsupported_reason(spec)
+        if unsupported is not None:
+            return Estimate(**base, status="unsupported", reason=unsupported)
+
+        out_buffer, err_buffer = io.StringIO(), io.StringIO()
+        start = time.perf_counter()
+        with (
+            warnings.catch_warnings(record=True) as caught,
+            contextlib.redirect_stdout(out_buffer),
+            contextlib.redirect_stderr(err_buffer),
+        ):
+            warnings.simplefilter("always")
+            try:
+                result = self._fit(np.array(y, dtype=float, copy=True), spec)
+                error = None
+            except Exception as exc:  # the library's failure is a finding, not a crash
+                result = None
+                error = exc
+                trace = traceback.format_exc(limit=3)
+        seconds = time.perf_counter() - start
+        captured = [
+            CapturedWarning(
+                category=w.category.__name__,
+                message=str(w.message),
+                source=f"{w.filename}:{w.lineno}",
+            )
+            for w in caught
+        ]
+        printed = (out_buffer.getvalue() + err_buffer.getvalue()).strip()
+        if result is None:
+            return Estimate(
+                **base,
+                status="failed",
+                reason=f"{type(error).__name__}: {error}",
+                warnings=captured,
+                output=(printed + "\n" + trace).strip(),
+                seconds=seconds,
+            )
+        n_w = len(y) - spec.lost_to_differencing
+        return self._estimate_from(result, base, spec, n_w, captured, printed, seconds)
+
+    def _estimate_from(
+        self,
+        result: FitOutput,
+        base: dict[str, Any],
+        spec: ModelSpec,
+        n_w: int,
+        captured: list[CapturedWarning],
+        printed: str,
+        seconds: float,
+    ) -> Estimate:
+        names = coefficient_names(spec)
+        missing = [name for name in names if name not in result.params]
+        if missing:
+            return Estimate(
+                **base,
+                status="failed",
+                reason=f"the fit returned no value for {', '.join(missing)}",
+                native_params={str(k_): float(v) for k_, v in result.native_params.items()},
+                warnings=captured,
+                output=printed,
+                seconds=seconds,
+            )
+        params = {name: float(result.params[name]) for name in names}
+        params["sigma2"] = float(result.sigma2_ml)
+        ordered = {name: params[name] for name in parameter_names(spec)}
+        extra = sorted(name[len("extra:") :] for name in result.params if name.startswith("extra:"))
+        fitted_model = result.fitted_model
+        if extra and fitted_model is None:
+            fitted_model = f"{spec} with extra terms: {', '.join(extra)}"
+        k = len(names) + 1
+        return Estimate(
+            **base,
+            status="ok",
+            params=ordered,
+            native_params={str(k_): float(v) for k_, v in result.native_params.items()},
+            sigma2_reported=float(result.sigma2_reported),
+            sigma2_definition=result.sigma2_definition,
+            loglike_native=float(result.loglike),
+            loglike_definition=result.loglike_definition,
+            n_used_native=int(result.n_used),
+            k_counted_native=int(result.k_counted),
+            criteria_native={k_: float(v) for k_, v in result.criteria.items()},
+            criteria=information_criteria(result.loglike, k, n_w),
+            n_w=n_w,
+            k=k,
+            converged=result.converged,
+            optimizer=result.optimizer,
+            options=result.options,
+            notes=list(result.notes),
+            fitted_model=fitted_model,
+            overridden_defaults=dict(result.overridden_defaults),
+            warnings=captured,
+            output=printed,
+            seconds=seconds,
+            native=result.native,
+        )
+
+    @abstractmethod
+    def _fit(self, y: np.ndarray, spec: ModelSpec) -> FitOutput:
+        """Translate the spec, call the library on ``y``, translate the result."""
+
+
+# ---------------------------------------------------------------------- registry
+_REGISTRY: dict[str, type[EstimatorAdapter]] = {}
+
+
+def register_estimator(cls: type[EstimatorAdapter]) -> type[EstimatorAdapter]:
+    """Class decorator adding an adapter to the registry under its ``key``."""
+    if not getattr(cls, "key", None):
+        raise EstimatorError(f"{cls.__name__} has no key; set the class attribute 'key'.")
+    _REGISTRY[cls.key] = cls
+    return cls
+
+
+def available_estimators() -> list[str]:
+    """Keys of every registered estimator, in registration order."""
+    return list(_REGISTRY)
+
+
+def get_adapter(key: str) -> EstimatorAdapter:
+    """An adapter instance for ``key``.
+
+    Raises
+    ------
+    EstimatorError
+        For an unknown key, listing the known ones.
+    """
+    try:
+        return _REGISTRY[key]()
+    except KeyError:
+        known = ", ".join(_REGISTRY)
+        raise EstimatorError(f"Unknown estimator {key!r}; known estimators: {known}.") from None
