@@ -1,5 +1,15 @@
-"""forecastaudit: audit one seasonal ARIMA specification across several estimators."""
+"""forecastaudit: audit one seasonal ARIMA specification across several estimators.
 
+>>> import forecastaudit as fa
+>>> report = fa.audit(series, fa.ModelSpec(order=(0, 1, 1), seasonal=(0, 1, 1), period=12,
+...                                        transform="log"))          # doctest: +SKIP
+>>> report.passed, report.findings, report.parameters                   # doctest: +SKIP
+"""
+
+__version__ = "0.1.0"
+
+from .audit import CAUTION, AuditReport, audit
+from .demo import DEMO_SPEC, load_demo
 from .errors import (
     EstimatorError,
     ForecastAuditError,
@@ -8,17 +18,30 @@ from .errors import (
     SpecError,
     ToleranceError,
 )
+from .estimators import Estimate, available_estimators
+from .findings import KINDS, Finding
+from .record import load_record
 from .spec import ModelSpec
-
-__version__ = "0.1.0"
+from .tolerances import Tolerances
 
 __all__ = [
+    "CAUTION",
+    "DEMO_SPEC",
+    "KINDS",
+    "AuditReport",
+    "Estimate",
     "EstimatorError",
+    "Finding",
     "ForecastAuditError",
     "ModelSpec",
     "RecordError",
     "SeriesError",
     "SpecError",
     "ToleranceError",
+    "Tolerances",
     "__version__",
+    "audit",
+    "available_estimators",
+    "load_demo",
+    "load_record",
 ]

@@ -125,8 +125,10 @@ class ModelSpec:
         set_(self, "seasonal", _check_order(self.seasonal, "seasonal (P, D, Q)"))
         if self.period is not None:
             period = self.period
-            if isinstance(period, bool) or not isinstance(period, int | float) or period != int(
-                period
+            if (
+                isinstance(period, bool)
+                or not isinstance(period, int | float)
+                or period != int(period)
             ):
                 raise SpecError(f"period must be a whole number, got {period!r}.")
             set_(self, "period", int(period))
@@ -150,9 +152,7 @@ class ModelSpec:
             raise SpecError("exog must be a tuple of column names, not a single string.")
         exog = tuple(self.exog)
         if exog:
-            raise SpecError(
-                f"Exogenous regressors {exog} are not supported yet; fit without exog."
-            )
+            raise SpecError(f"Exogenous regressors {exog} are not supported yet; fit without exog.")
         set_(self, "exog", exog)
 
     # ------------------------------------------------------------------ views

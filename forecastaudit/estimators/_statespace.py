@@ -114,7 +114,7 @@ def read_result(result: Any, spec: ModelSpec, mean_kind: MeanKind) -> dict[str, 
     """Everything the adapters need from a SARIMAXResults, in plain values."""
     names = list(result.model.param_names)
     values = np.asarray(result.params, dtype=float)
-    params, notes = canonical_coefficients(names, values, spec, mean_kind)
+    params, conversions = canonical_coefficients(names, values, spec, mean_kind)
     native = dict(zip(names, values.tolist(), strict=True))
     retvals = dict(getattr(result, "mle_retvals", None) or {})
     settings = dict(getattr(result, "mle_settings", None) or {})
@@ -149,7 +149,7 @@ def read_result(result: Any, spec: ModelSpec, mean_kind: MeanKind) -> dict[str, 
             "maxiter": settings.get("maxiter"),
             "start_params": "library default (conditional least squares)",
         },
-        "notes": notes,
+        "conversions": conversions,
     }
 
 
@@ -184,7 +184,8 @@ def to_fit_output(
         converged=read["converged"],
         optimizer=read["optimizer"],
         options={**read["model_options"], **read["fit_options"], **(options or {})},
-        notes=[*read["notes"], *(notes or [])],
+        conversions=read["conversions"],
+        notes=list(notes or []),
         overridden_defaults=dict(overridden_defaults or {}),
         native=result,
     )

@@ -126,8 +126,10 @@ class FitOutput:
         The optimiser's message, code, iterations, as the library reports them.
     options : dict
         Every option used: those set from the spec and the library defaults, resolved.
-    notes : list of str
+    conversions : list of str
         Conversions made on the way to the canonical convention, in plain words.
+    notes : list of str
+        Other remarks on how the library defines what it reports.
     fitted_model : str
         The model actually fitted, in our text form, when it differs from the spec.
     overridden_defaults : dict
@@ -150,6 +152,7 @@ class FitOutput:
     converged: bool | None
     optimizer: dict[str, Any]
     options: dict[str, Any]
+    conversions: list[str] = field(default_factory=list)
     notes: list[str] = field(default_factory=list)
     fitted_model: str | None = None
     overridden_defaults: dict[str, Any] = field(default_factory=dict)
@@ -178,8 +181,9 @@ class Estimate:
     params : dict
         Canonical parameters including ``sigma2`` (the maximum-likelihood variance).
     criteria : dict
-        ``aic``, ``aicc``, ``bic`` recomputed on the canonical definition from the library's
-        own log-likelihood, with k = coefficients + 1 and n = n_w.
+        ``aic``, ``aicc``, ``bic`` on the canonical definition (k = coefficients + 1,
+        n = n_w): from the library's own log-likelihood when fitted, replaced by the audit
+        with the reference log-likelihood at the estimate's parameters.
     seconds : float
         Wall time of the fit.
     warnings : list of CapturedWarning
@@ -210,6 +214,7 @@ class Estimate:
     converged: bool | None = None
     optimizer: dict[str, Any] = field(default_factory=dict)
     options: dict[str, Any] = field(default_factory=dict)
+    conversions: list[str] = field(default_factory=list)
     notes: list[str] = field(default_factory=list)
     fitted_model: str | None = None
     overridden_defaults: dict[str, Any] = field(default_factory=dict)
@@ -252,6 +257,7 @@ class Estimate:
             "converged": self.converged,
             "optimizer": _plain(self.optimizer),
             "options": _plain(self.options),
+            "conversions": list(self.conversions),
             "notes": list(self.notes),
             "fitted_model": self.fitted_model,
             "overridden_defaults": _plain(self.overridden_defaults),
@@ -448,6 +454,7 @@ class EstimatorAdapter(ABC):
             converged=result.converged,
             optimizer=result.optimizer,
             options=result.options,
+            conversions=list(result.conversions),
             notes=list(result.notes),
             fitted_model=fitted_model,
             overridden_defaults=dict(result.overridden_defaults),

@@ -63,7 +63,7 @@ class StatsforecastArima(EstimatorAdapter):
         fit = model.model_
         coef = {str(k): float(v) for k, v in fit["coef"].items()}
         params: dict[str, float] = {}
-        notes: list[str] = []
+        conversions: list[str] = []
         for name, value in coef.items():
             match = _NAME.match(name)
             if match:
@@ -77,15 +77,13 @@ class StatsforecastArima(EstimatorAdapter):
                 params["mu"] = coef["intercept"]
             else:
                 params["mu"] = coef["drift"] * trend_scale(spec)
-                notes.append(f"mu = {trend_scale(spec):g} x drift (slope per period in levels)")
+                conversions.append(
+                    f"mu = {trend_scale(spec):g} x drift (slope per period in levels)"
+                )
         n_w = int(fit["nobs"])
         n_coef = int(np.sum(fit["mask"]))
         sigma2_reported = float(fit["sigma2"])
         sigma2_ml = df_adjusted_to_ml_sigma2(sigma2_reported, n_w, n_coef)
-        notes.append(
-            f"sigma2 reported {sigma2_reported:.6g} = SSR/(n_w - {n_coef}); "
-            f"ML sigma2 = SSR/n_w = {sigma2_ml:.6g}"
-        )
         code = int(fit["code"])
         options = {
             name: getattr(model, name)
@@ -111,7 +109,7 @@ class StatsforecastArima(EstimatorAdapter):
             converged=code == 0,
             optimizer={"code": code, "message": _CODES.get(code, "unknown status")},
             options=options,
-            notes=notes,
+            conversions=conversions,
             overridden_defaults=overridden,
             native=model,
         )

@@ -57,6 +57,4 @@ class StatsmodelsArima(EstimatorAdapter):
         mean_kind = "mean" if spec.n_differences == 0 else "trend"
         # The library adds a constant by default when d + D = 0; the spec decides instead.
         overridden = {"trend": "c"} if spec.n_differences == 0 and not spec.mean else {}
-        return _statespace.to_fit_output(
-            result, spec, mean_kind, overridden_defaults=overridden
-        )
+        return _statespace.to_fit_output(result, spec, mean_kind, overridden_defaults=overridden)

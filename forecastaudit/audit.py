@@ -1,0 +1,312 @@
+"""The main job: fit one specification through every estimator and audit the results."""
+
+from __future__ import annotations
+
+import datetime as _dt
+import math
+from collections.abc import Iterable, Mapping
+from dataclasses import dataclass, field
+from typing import Any
+
+import pandas as pd
+
+from . import reference as _reference
+from .compare import REFERENCE_KEY, Rescore, diagnose, likelihood_table, parameter_table
+from .conventions import information_criteria, parameter_names
+from .errors import EstimatorError, SpecError
+from .estimators import Estimate, available_estimators, get_adapter
+from .findings import Finding
+from .series import PreparedSeries, check_length, prepare_series
+from .spec import ModelSpec
+from .tolerances import Tolerances
+
+__all__ = ["REFERENCE_ENGINE", "AuditReport", "audit"]
+
+REFERENCE_ENGINE = "forecastaudit-reference"
+
+CAUTION = (
+    "Agreement between implementations is evidence about the numerics of the fit, not proof "
+    "that the model is fit for its purpose. Whether it may be used is for the organisation's "
+    "model-risk policy and for qualified review to decide, above all where forecasts drive "
+    "staffing, financial, health or safety decisions."
+)
+
+
+@dataclass
+class AuditReport:
+    """The result of :func:`audit`.
+
+    Attributes
+    ----------
+    spec : ModelSpec
+        The specification audited (with the period in use).
+    series : PreparedSeries
+        The validated input (original scale).
+    tolerances : Tolerances
+        The tolerances the verdict was reached under.
+    estimates : dict of str to Estimate
+        Every estimator asked for, by key, whatever its status, plus ``"reference"`` (the
+        reference optimum) when the reference fit ran.
+    parameters : pandas.DataFrame
+        Canonical parameters: rows are canonical names, columns estimator keys, with the
+        reference standard errors in ``reference_se``.
+    likelihoods : pandas.DataFrame
+        Per estimator: native and reference log-likelihood, gap to the best, n, k and the
+        criteria as reported and on the canonical definition.
+    findings : list of Finding
+        Most severe first.
+    created : str
+        UTC time the audit finished (ISO 8601).
+    """
+
+    spec: ModelSpec
+    series: PreparedSeries
+    tolerances: Tolerances
+    estimates: dict[str, Estimate]
+    parameters: pd.DataFrame
+    likelihoods: pd.DataFrame
+    findings: list[Finding]
+    standard_errors: dict[str, float] = field(default_factory=dict)
+    reference_starts: list[dict[str, Any]] = field(default_factory=list)
+    options: dict[str, Any] = field(default_factory=dict)
+    created: str = ""
+
+    # ------------------------------------------------------------------ verdict
+    @property
+    def passed(self) -> bool:
+        """True when no finding has severity ``fail``."""
+        return not any(f.severity == "fail" for f in self.findings)
+
+    @property
+    def verdict(self) -> str:
+        """``"pass"`` or ``"fail"``."""
+        return "pass" if self.passed else "fail"
+
+    @property
+    def independent_engines(self) -> list[str]:
+        """Independent engines whose estimates agree with the reference optimum."""
+        for f in self.findings:
+            if f.kind == "engine-count":
+                return list(f.values.get("agreeing", []))
+        return []
+
+    def findings_of(self, severity: str | None = None, kind: str | None = None) -> list[Finding]:
+        """Findings filtered by severity and/or kind."""
+        return [
+            f
+            for f in self.findings
+            if (severity is None or f.severity == severity) and (kind is None or f.kind == kind)
+        ]
+
+    # ------------------------------------------------------------------ output
+    def to_dict(self) -> dict[str, Any]:
+        """The audit record as a plain dictionary (see :mod:`forecastaudit.record`)."""
+        from .record import build_record
+
+        return build_record(self)
+
+    def to_json(self, path: str | None = None) -> str:
+        """The audit record as JSON text; also written (atomically) to ``path`` if given."""
+        from .record import dumps, write_text_atomic
+
+        text = dumps(self.to_dict())
+        if path is not None:
+            write_text_atomic(path, text)
+        return text
+
+    def __str__(self) -> str:
+        lines = [
+            f"forecastaudit: {self.spec} on '{self.series.name}' "
+            f"({len(self.series)} observations) -> {self.verdict.upper()}",
+            "",
+        ]
+        with pd.option_context("display.width", 120, "display.max_columns", 20):
+            lines += ["Parameters (canonical convention):", self.parameters.to_string(), ""]
+            cols = ["status", "loglike_native", "loglike_reference", "gap_to_best", "aicc"]
+            lines += ["Log-likelihoods:", self.likelihoods[cols].to_string(), ""]
+        counts = {s: len(self.findings_of(s)) for s in ("fail", "warn", "info")}
+        lines.append(
+            f"Findings: {counts['fail']} fail, {counts['warn']} warn, {counts['info']} info"
+        )
+        lines += [f"  {f}" for f in self.findings if f.severity != "info"]
+        lines += ["", CAUTION]
+        return "\n".join(lines)
+
+
+def _resolve_spec(spec: ModelSpec | str, series_period: int | None) -> ModelSpec:
+    if isinstance(spec, str):
+        spec = ModelSpec.parse(spec)
+    if not isinstance(spec, ModelSpec):
+        raise SpecError(
+            f"spec must be a ModelSpec or its text form, got {type(spec).__name__}; e.g. "
+            "fa.ModelSpec(order=(0, 1, 1), seasonal=(0, 1, 1), period=12)."
+        )
+    if spec.period is None and series_period is not None and series_period > 1:
+        spec = spec.with_period(series_period)
+    return spec
+
+
+def _resolve_estimators(estimators: Iterable[str] | None) -> list[str]:
+    if estimators is None:
+        return available_estimators()
+    if isinstance(estimators, str):
+        estimators = [estimators]
+    keys = list(dict.fromkeys(estimators))
+    if not keys:
+        raise EstimatorError("estimators is empty; pass None for all, or a list of keys.")
+    if REFERENCE_KEY in keys:
+        raise EstimatorError(
+            "'reference' is forecastaudit's own fit and always runs; leave it out of estimators."
+        )
+    for key in keys:
+        get_adapter(key)  # raises EstimatorError naming the known keys
+    return keys
+
+
+def _reference_estimate(y_t: Any, spec: ModelSpec, fit: Any, n_w: int) -> Estimate:
+    params = {name: float(fit.params[name]) for name in parameter_names(spec)}
+    k = len(params)
+    return Estimate(
+        key=REFERENCE_KEY,
+        engine=REFERENCE_ENGINE,
+        package="forecastaudit",
+        version=_version(),
+        status="ok",
+        spec=spec,
+        params=params,
+        sigma2_reported=params["sigma2"],
+        sigma2_definition="maximum likelihood (profiled)",
+        loglike_native=float(fit.loglike),
+        loglike_definition=(
+            "exact Gaussian log-likelihood of the differenced series (forecastaudit's "
+            "reference), 2*pi constant included, at the maximum-likelihood sigma2"
+        ),
+        n_used_native=n_w,
+        k_counted_native=k,
+        criteria_native=information_criteria(float(fit.loglike), k, n_w),
+        criteria=information_criteria(float(fit.loglike), k, n_w),
+        n_w=n_w,
+        k=k,
+        converged=bool(fit.converged),
+        optimizer={"message": fit.message},
+        options={"starts": [s.get("label") for s in _start_rows(fit)]},
+        seconds=float(fit.seconds),
+        native=fit,
+    )
+
+
+def _start_rows(fit: Any) -> list[dict[str, Any]]:
+    rows = []
+    for item in getattr(fit, "start_results", []):
+        row = item if isinstance(item, Mapping) else vars(item)
+        rows.append({k: v for k, v in row.items()})
+    return rows
+
+
+def _version() -> str:
+    from . import __version__
+
+    return __version__
+
+
+def audit(
+    y: Any,
+    spec: ModelSpec | str,
+    estimators: Iterable[str] | None = None,
+    tolerances: Tolerances | Mapping[str, float] | None = None,
+    *,
+    period: int | None = None,
+    name: str | None = None,
+    progress: bool = False,
+) -> AuditReport:
+    """Fit ``spec`` through every estimator, re-score under the reference likelihood, diagnose.
+
+    Parameters
+    ----------
+    y : pandas.Series, numpy.ndarray or sequence of numbers
+        The series on its original scale, in time order, without gaps. It is not modified.
+    spec : ModelSpec or str
+        The model, e.g. ``ModelSpec(order=(0, 1, 1), seasonal=(0, 1, 1), period=12,
+        transform="log")`` or its text form ``"ARIMA(0,1,1)x(0,1,1)12 +log"``.
+    estimators : iterable of str, optional
+        Estimator keys to run (see :func:`forecastaudit.available_estimators`); default all.
+        A library that is not installed is reported as ``unavailable`` and the audit goes on.
+    tolerances : Tolerances or mapping, optional
+        Tolerances of the verdict; a mapping overrides some of the defaults.
+    period : int, optional
+        Seasonal period of the series when the index does not imply one (or to override it).
+    name : str, optional
+        Display name of the series.
+    progress : bool
+        Show a progress bar (tqdm) over the estimators.
+
+    Returns
+    -------
+    AuditReport
+
+    Raises
+    ------
+    SpecError, SeriesError, EstimatorError, ToleranceError
+        On invalid input, before anything is fitted.
+    """
+    if tolerances is None:
+        tol = Tolerances()
+    elif isinstance(tolerances, Tolerances):
+        tol = tolerances
+    else:
+        tol = Tolerances.from_dict(dict(tolerances))
+    if period is None and isinstance(spec, ModelSpec):
+        period = spec.period
+    series = prepare_series(y, period=period, name=name)
+    spec = _resolve_spec(spec, series.period)
+    check_length(series, spec)
+    keys = _resolve_estimators(estimators)
+    y_t = series.transformed(spec)
+    n_w = len(series) - spec.lost_to_differencing
+
+    iterator: Iterable[str] = keys
+    if progress:
+        from tqdm.auto import tqdm
+
+        iterator = tqdm(keys, desc=f"fitting {spec}", unit="estimator")
+    estimates = {key: get_adapter(key).fit(y_t, spec) for key in iterator}
+
+    # Reference stage: re-score every estimate, then a multi-start reference fit.
+    ok = {k: e for k, e in estimates.items() if e.ok}
+    starts = {k: dict(e.params) for k, e in ok.items()}
+    fit = _reference.fit_reference(y_t, spec, starts)
+    reference = _reference_estimate(y_t, spec, fit, n_w)
+    standard_errors = {k: float(v) for k, v in fit.standard_errors.items()}
+    scored = {k: _reference.evaluate(y_t, spec, e.params) for k, e in ok.items()}
+    scored[REFERENCE_KEY] = _reference.evaluate(y_t, spec, reference.params)
+    best = max(s.profiled_loglike for s in scored.values())
+    rescores = {
+        k: Rescore(
+            loglike=float(s.loglike),
+            profiled_loglike=float(s.profiled_loglike),
+            gap=float(best - s.profiled_loglike),
+        )
+        for k, s in scored.items()
+    }
+    findings = diagnose(spec, estimates, rescores, reference, standard_errors, tol)
+    all_estimates = {**estimates, REFERENCE_KEY: reference}
+    for key, e in all_estimates.items():
+        if key in rescores and e.ok and e.n_w:
+            e.criteria = information_criteria(rescores[key].loglike, e.k or 0, e.n_w)
+    return AuditReport(
+        spec=spec,
+        series=series,
+        tolerances=tol,
+        estimates=all_estimates,
+        parameters=parameter_table(spec, all_estimates, standard_errors),
+        likelihoods=likelihood_table(all_estimates, rescores),
+        findings=findings,
+        standard_errors=standard_errors,
+        reference_starts=_start_rows(fit),
+        options={"estimators": keys},
+        created=_dt.datetime.now(_dt.UTC).replace(microsecond=0).isoformat(),
+    )
+
+
+def _finite(value: float) -> bool:
+    return isinstance(value, float) and math.isfinite(value)

@@ -1,0 +1,224 @@
+"""Command line: ``forecastaudit <command> ...``.
+
+Exit codes: 0 the audit passed; 1 the audit ran and at least one finding is beyond
+tolerance (severity ``fail``); 2 a usage or input error (nothing was written).
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from collections.abc import Sequence
+from pathlib import Path
+
+import pandas as pd
+
+from .errors import ForecastAuditError, SeriesError
+
+EXIT_PASS = 0
+EXIT_FINDINGS = 1
+EXIT_USAGE = 2
+
+RECORD_NAME = "forecastaudit-record.json"
+
+_EPILOG = """exit codes:
+  0  the audit passed (no finding beyond tolerance); 'demo' also when it ran at all
+  1  the audit ran; at least one finding is beyond tolerance
+  2  usage or input error; nothing was written
+"""
+
+
+def _parse_tolerances(items: Sequence[str] | None) -> dict[str, float]:
+    out: dict[str, float] = {}
+    for item in items or []:
+        name, sep, value = item.partition("=")
+        if not sep:
+            raise ForecastAuditError(
+                f"--tolerance expects NAME=VALUE (e.g. loglike_atol=0.05), got {item!r}."
+            )
+        try:
+            number = float(value)
+        except ValueError:
+            raise ForecastAuditError(f"--tolerance {name}: {value!r} is not a number.") from None
+        out[name.strip()] = int(number) if name.strip() == "min_independent_engines" else number
+    return out
+
+
+def read_series(path: str | Path, column: str | None, date_column: str | None = None) -> pd.Series:
+    """Read one column of a CSV or Parquet file as a Series indexed by its date column.
+
+    Without ``date_column`` the first column is used as dates when it parses as dates.
+    """
+    path = Path(path)
+    if not path.exists():
+        raise SeriesError(f"No such file: {path}.")
+    suffix = path.suffix.lower()
+    try:
+        frame = pd.read_parquet(path) if suffix in {".parquet", ".pq"} else pd.read_csv(path)
+    except Exception as exc:
+        raise SeriesError(f"Cannot read {path}: {type(exc).__name__}: {exc}") from exc
+    if column is None:
+        numeric = [c for c in frame.columns if pd.api.types.is_numeric_dtype(frame[c])]
+        if len(numeric) != 1:
+            raise SeriesError(
+                f"{path} has columns {list(frame.columns)}; choose one with --column."
+            )
+        column = numeric[0]
+    if column not in frame.columns:
+        raise SeriesError(f"{path} has no column {column!r}; its columns: {list(frame.columns)}.")
+    dates = date_column
+    if dates is None and frame.columns[0] != column:
+        candidate = frame.columns[0]
+        parsed = pd.to_datetime(frame[candidate], errors="coerce")
+        if parsed.notna().all():
+            dates = candidate
+    series = frame[column].copy()
+    if dates is not None:
+        if dates not in frame.columns:
+            raise SeriesError(f"{path} has no date column {dates!r}.")
+        parsed = pd.to_datetime(frame[dates], errors="coerce")
+        if parsed.isna().any():
+            bad = frame[dates][parsed.isna()].iloc[0]
+            raise SeriesError(f"Date column {dates!r} has a value that is not a date: {bad!r}.")
+        series.index = pd.DatetimeIndex(parsed, name=dates)
+        freq = pd.infer_freq(series.index) if len(series) >= 3 else None
+        if freq is not None:
+            series = series.asfreq(freq)
+    series.name = column
+    return series
+
+
+def _write_outputs(report: object, out: Path) -> list[Path]:
+    from .record import write_text_atomic
+
+    written = [write_text_atomic(out / RECORD_NAME, report.to_json())]  # type: ignore[attr-defined]
+    return written
+
+
+def _finish(report: object, out: Path | None) -> int:
+    print(report)
+    if out is not None:
+        for path in _write_outputs(report, out):
+            print(f"wrote {path}")
+    return EXIT_PASS if report.passed else EXIT_FINDINGS  # type: ignore[attr-defined]
+
+
+def _demo_exit(code: int) -> int:
+    # The demo shows what an audit finds; a failing verdict is its result, not an error.
+    return EXIT_PASS if code == EXIT_FINDINGS else code
+
+
+def _cmd_demo(args: argparse.Namespace) -> int:
+    from .audit import audit
+    from .demo import DEMO_SPEC, load_demo
+
+    series = load_demo()
+    print(
+        "Demo: monthly red-cell units issued by the (fictional) Ashgrove Regional Blood "
+        f"Service, {series.index[0]} to {series.index[-1]}; model {DEMO_SPEC}.\n"
+    )
+    report = audit(series, DEMO_SPEC, progress=not args.quiet)
+    return _demo_exit(_finish(report, Path(args.out)))
+
+
+def _cmd_audit(args: argparse.Namespace) -> int:
+    from .audit import audit
+
+    series = read_series(args.data, args.column, args.date_column)
+    estimators = args.estimators.split(",") if args.estimators else None
+    report = audit(
+        series,
+        args.model,
+        estimators=estimators,
+        tolerances=_parse_tolerances(args.tolerance),
+        period=args.period,
+        progress=not args.quiet,
+    )
+    return _finish(report, Path(args.out) if args.out else None)
+
+
+def _cmd_estimators(args: argparse.Namespace) -> int:
+    from .estimators import available_estimators, get_adapter
+
+    for key in available_estimators():
+        adapter = get_adapter(key)
+        missing = adapter.availability()
+        state = "available" if missing is None else f"unavailable: {missing}"
+        print(
+            f"{key:22} {adapter.package} {adapter.version() or '-':10} "
+            f"engine {adapter.engine:24} {state}"
+        )
+    return EXIT_PASS
+
+
+def build_parser() -> argparse.ArgumentParser:
+    """The argument parser (exposed for documentation and tests)."""
+    parser = argparse.ArgumentParser(
+        prog="forecastaudit",
+        description=(
+            "Fit one seasonal ARIMA specification through several estimators, put every "
+            "output on one convention, re-score it under a reference likelihood, and "
+            "write an audit record."
+        ),
+        epilog=_EPILOG,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+    sub.required = True
+
+    demo = sub.add_parser(
+        "demo",
+        help="audit the built-in demo series and write its record",
+        epilog=_EPILOG,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    demo.add_argument("--out", default="demo-output", help="output folder (default: %(default)s)")
+    demo.add_argument("--quiet", action="store_true", help="no progress bar")
+    demo.set_defaults(func=_cmd_demo)
+
+    run = sub.add_parser(
+        "audit",
+        help="audit one column of a CSV or Parquet file",
+        epilog=_EPILOG,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    run.add_argument("data", help="CSV or Parquet file, one row per period")
+    run.add_argument("--column", help="column to audit (default: the only numeric column)")
+    run.add_argument("--date-column", help="column of dates (default: the first, if dates)")
+    run.add_argument(
+        "--model",
+        required=True,
+        help="model in text form, e.g. 'ARIMA(0,1,1)x(0,1,1)12 +log'",
+    )
+    run.add_argument("--period", type=int, help="seasonal period, if the dates do not imply it")
+    run.add_argument(
+        "--estimators", help="comma-separated estimator keys (default: all; see 'estimators')"
+    )
+    run.add_argument(
+        "--tolerance",
+        action="append",
+        metavar="NAME=VALUE",
+        help="override a tolerance, e.g. loglike_atol=0.05 (repeatable)",
+    )
+    run.add_argument("--out", help="output folder for the record (default: print only)")
+    run.add_argument("--quiet", action="store_true", help="no progress bar")
+    run.set_defaults(func=_cmd_audit)
+
+    est = sub.add_parser("estimators", help="list the estimators, their versions and engines")
+    est.set_defaults(func=_cmd_estimators)
+    return parser
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Entry point of the ``forecastaudit`` command; returns the exit code."""
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    try:
+        return int(args.func(args))
+    except ForecastAuditError as exc:
+        print(f"forecastaudit: error: {exc}", file=sys.stderr)
+        return EXIT_USAGE
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

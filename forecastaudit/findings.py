@@ -1,0 +1,122 @@
+"""Findings: one per disagreement, event or caveat, written for a reviewer.
+
+Each finding has a kind from :data:`KINDS` (names of our own, each with a one-line
+explanation for the report), a severity, the estimator it concerns (or None for the audit as
+a whole), the quantity it is about, a plain-language message and the numbers behind it.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Any, Literal
+
+__all__ = ["KINDS", "SEVERITIES", "Finding"]
+
+Severity = Literal["info", "warn", "fail"]
+SEVERITIES: tuple[Severity, ...] = ("info", "warn", "fail")
+
+KINDS: dict[str, str] = {
+    "unavailable": "The estimator's package is not installed, so it took no part.",
+    "unsupported": "The estimator cannot fit this specification; nothing was fitted.",
+    "fit-failed": "The estimator raised an error or returned nothing usable.",
+    "not-converged": "The estimator's own optimiser did not report convergence.",
+    "library-warnings": "The estimator raised warnings during the fit (kept, not shown).",
+    "default-overridden": (
+        "The specification overrode a library default that would have changed the model."
+    ),
+    "convention-difference": (
+        "The native values differ from the canonical ones only by convention (sign, "
+        "intercept versus mean, drift); they agree after conversion."
+    ),
+    "definition-difference": (
+        "A reported quantity (log-likelihood, criteria, sigma2) differs only because the "
+        "estimator defines it differently; under the reference definitions it agrees."
+    ),
+    "stopped-short": (
+        "The estimate is below the best reference log-likelihood by more than the "
+        "tolerance: the optimiser stopped before the optimum."
+    ),
+    "flat-likelihood": (
+        "Parameters differ beyond tolerance but the reference log-likelihoods are equal: "
+        "the data do not pin down this direction (weak identification)."
+    ),
+    "parameter-disagreement": (
+        "Parameters differ from the reference optimum beyond tolerance and no other finding "
+        "explains it."
+    ),
+    "near-boundary": (
+        "A root of an AR or MA polynomial lies on or near the unit circle (the edge of the "
+        "stationary or invertible region)."
+    ),
+    "possible-overdifferencing": (
+        "An MA root near 1 after differencing suggests the series was differenced once too "
+        "often (common practice, no source)."
+    ),
+    "implied-trend": (
+        "A non-zero mean with two or more differences implies a polynomial trend in levels."
+    ),
+    "different-model": "The estimator fitted terms the specification did not ask for.",
+    "reference-fit": "A caveat about the reference fit itself (convergence, standard errors).",
+    "engine-count": "How many independent engines agree with the reference optimum.",
+}
+
+
+@dataclass(frozen=True)
+class Finding:
+    """One finding of an audit.
+
+    Attributes
+    ----------
+    kind : str
+        One of :data:`KINDS`.
+    severity : {"info", "warn", "fail"}
+        ``fail`` findings make the audit fail; ``warn`` asks the reviewer to look;
+        ``info`` is recorded for completeness.
+    estimator : str or None
+        The estimator key the finding is about, or None for the audit as a whole.
+    quantity : str or None
+        The quantity concerned (a canonical parameter name, ``loglike``, ``aicc`` ...).
+    message : str
+        A plain-language explanation for a reviewer who has never opened the code.
+    values : dict
+        The numbers behind the finding.
+    """
+
+    kind: str
+    severity: Severity
+    estimator: str | None
+    quantity: str | None
+    message: str
+    values: dict[str, Any] = field(default_factory=dict)
+
+    def __post_init__(self) -> None:
+        if self.kind not in KINDS:
+            raise ValueError(f"unknown finding kind {self.kind!r}")
+        if self.severity not in SEVERITIES:
+            raise ValueError(f"unknown severity {self.severity!r}")
+
+    def to_dict(self) -> dict[str, Any]:
+        """JSON-ready form (non-finite numbers become None)."""
+        return {
+            "kind": self.kind,
+            "severity": self.severity,
+            "estimator": self.estimator,
+            "quantity": self.quantity,
+            "message": self.message,
+            "values": {k: _finite_or_none(v) for k, v in self.values.items()},
+        }
+
+    def __str__(self) -> str:
+        who = f" [{self.estimator}]" if self.estimator else ""
+        return f"{self.severity.upper():4} {self.kind}{who}: {self.message}"
+
+
+def _finite_or_none(value: Any) -> Any:
+    if isinstance(value, float) and not math.isfinite(value):
+        return None
+    if isinstance(value, dict):
+        return {str(k): _finite_or_none(v) for k, v in value.items()}
+    if isinstance(value, list | tuple):
+        return [_finite_or_none(v) for v in value]
+    return value

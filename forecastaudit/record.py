@@ -1,0 +1,174 @@
+"""The audit record: a versioned JSON document with provenance.
+
+The same inputs give the same bytes apart from the ``created`` time: keys are sorted,
+floats are written in Python's shortest round-trip form, and non-finite numbers become
+``null``. Files are written atomically (a temporary file in the same folder, then a rename),
+so a reader never sees half a record.
+"""
+
+from __future__ import annotations
+
+import importlib.metadata
+import json
+import math
+import os
+import platform
+import sys
+import tempfile
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+import numpy as np
+
+from .errors import RecordError
+
+if TYPE_CHECKING:
+    from .audit import AuditReport
+
+__all__ = ["SCHEMA_VERSION", "build_record", "dumps", "load_record", "write_text_atomic"]
+
+SCHEMA_VERSION = "1.0"
+RECORD_KIND = "forecastaudit-record"
+
+# Packages whose versions are recorded whether or not they took part.
+_PROVENANCE_PACKAGES = (
+    "numpy",
+    "scipy",
+    "pandas",
+    "statsmodels",
+    "pmdarima",
+    "sktime",
+    "statsforecast",
+)
+
+
+def _version(package: str) -> str | None:
+    try:
+        return importlib.metadata.version(package)
+    except importlib.metadata.PackageNotFoundError:
+        return None
+
+
+def provenance(report: AuditReport) -> dict[str, Any]:
+    """Versions, platform and data fingerprint: what a reviewer needs to reproduce a record."""
+    from . import __version__
+
+    return {
+        "forecastaudit": __version__,
+        "python": sys.version.split()[0],
+        "implementation": platform.python_implementation(),
+        "platform": platform.platform(),
+        "machine": platform.machine(),
+        "packages": {name: _version(name) for name in _PROVENANCE_PACKAGES},
+        "data": {
+            "name": report.series.name,
+            "n": len(report.series),
+            "fingerprint_sha256": report.series.fingerprint,
+            "first": report.series.labels()[0],
+            "last": report.series.labels()[-1],
+            "frequency": report.series.frequency,
+            "period": report.series.period,
+        },
+    }
+
+
+def build_record(report: AuditReport) -> dict[str, Any]:
+    """The record of an audit as a JSON-ready dictionary."""
+    return _clean(
+        {
+            "record": RECORD_KIND,
+            "schema_version": SCHEMA_VERSION,
+            "created": report.created,
+            "verdict": report.verdict,
+            "spec": report.spec.to_dict(),
+            "tolerances": report.tolerances.describe(),
+            "options": report.options,
+            "provenance": provenance(report),
+            "independent_engines": report.independent_engines,
+            "estimates": {key: e.to_dict() for key, e in report.estimates.items()},
+            "reference": {
+                "standard_errors": report.standard_errors,
+                "starts": report.reference_starts,
+            },
+            "parameters": {
+                column: report.parameters[column].to_dict() for column in report.parameters
+            },
+            "likelihoods": {key: row.to_dict() for key, row in report.likelihoods.iterrows()},
+            "findings": [f.to_dict() for f in report.findings],
+        }
+    )
+
+
+def _clean(value: Any) -> Any:
+    """JSON-ready values: numpy scalars to Python, non-finite floats to None."""
+    if isinstance(value, dict):
+        return {str(k): _clean(v) for k, v in value.items()}
+    if isinstance(value, list | tuple):
+        return [_clean(v) for v in value]
+    if isinstance(value, np.ndarray):
+        return _clean(value.tolist())
+    if isinstance(value, np.bool_ | bool):
+        return bool(value)
+    if isinstance(value, np.integer):
+        return int(value)
+    if isinstance(value, np.floating | float):
+        value = float(value)
+        return value if math.isfinite(value) else None
+    if value is None or isinstance(value, int | str):
+        return value
+    if value is getattr(np, "nan", None):
+        return None
+    return repr(value)
+
+
+def dumps(record: dict[str, Any]) -> str:
+    """Deterministic JSON text of a record (sorted keys, two-space indent, final newline)."""
+    return json.dumps(_clean(record), sort_keys=True, indent=2, allow_nan=False) + "\n"
+
+
+def write_text_atomic(path: str | os.PathLike[str], text: str) -> Path:
+    """Write ``text`` to ``path`` atomically: the file is either the old one or the new one."""
+    target = Path(path)
+    target.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=target.parent)
+    try:
+        with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as handle:
+            handle.write(text)
+            handle.flush()
+            os.fsync(handle.fileno())
+        os.replace(tmp, target)
+    except BaseException:
+        Path(tmp).unlink(missing_ok=True)
+        raise
+    return target
+
+
+def load_record(path: str | os.PathLike[str]) -> dict[str, Any]:
+    """Read a record written by forecastaudit, checking its kind and schema version.
+
+    Only JSON is parsed; nothing in the file is executed.
+
+    Raises
+    ------
+    RecordError
+        When the file is not JSON, not a forecastaudit record, or of a schema version this
+        release does not read.
+    """
+    try:
+        text = Path(path).read_text(encoding="utf-8")
+    except OSError as exc:
+        raise RecordError(f"Cannot read record {path}: {exc}") from exc
+    try:
+        record = json.loads(text)
+    except json.JSONDecodeError as exc:
+        raise RecordError(f"{path} is not valid JSON ({exc}); it is not an audit record.") from exc
+    if not isinstance(record, dict) or record.get("record") != RECORD_KIND:
+        raise RecordError(f"{path} is not a forecastaudit record (no 'record' marker).")
+    version = str(record.get("schema_version", ""))
+    if version != SCHEMA_VERSION:
+        raise RecordError(
+            f"{path} has schema version {version or 'none'}; this forecastaudit reads "
+            f"version {SCHEMA_VERSION}. Use the forecastaudit release that wrote it, or "
+            "re-run the audit."
+        )
+    return record
