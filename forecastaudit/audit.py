@@ -10,7 +10,6 @@ from typing import Any
 
 import pandas as pd
 
-from . import reference as _reference
 from .compare import REFERENCE_KEY, Rescore, diagnose, likelihood_table, parameter_table
 from .conventions import information_criteria, parameter_names
 from .errors import EstimatorError, SpecError
@@ -271,7 +270,9 @@ def audit(
         iterator = tqdm(keys, desc=f"fitting {spec}", unit="estimator")
     estimates = {key: get_adapter(key).fit(y_t, spec) for key in iterator}
 
-    # Reference stage: re-score every estimate, then a multi-start reference fit.
+    # Reference stage: a multi-start reference fit, then every estimate re-scored.
+    from . import reference as _reference
+
     ok = {k: e for k, e in estimates.items() if e.ok}
     starts = {k: dict(e.params) for k, e in ok.items()}
     fit = _reference.fit_reference(y_t, spec, starts)

@@ -277,10 +277,16 @@ def _event_findings(e: Estimate) -> list[Finding]:
     return findings
 
 
-def _definition_findings(e: Estimate, rescore: Rescore, tol: Tolerances) -> list[Finding]:
+def _beyond_rounding(a: float, b: float) -> bool:
+    # Definition differences are explained whenever they show beyond rounding: they are
+    # information for the reviewer, not part of the verdict, so no tolerance applies.
+    return math.isfinite(a) and math.isfinite(b) and abs(a - b) > 1e-6 * max(1.0, abs(b))
+
+
+def _definition_findings(e: Estimate, rescore: Rescore) -> list[Finding]:
     findings = []
     diff = e.loglike_native - rescore.loglike
-    if math.isfinite(diff) and abs(diff) > tol.loglike_atol:
+    if _beyond_rounding(e.loglike_native, rescore.loglike):
         findings.append(
             Finding(
                 "definition-difference",
@@ -297,9 +303,7 @@ def _definition_findings(e: Estimate, rescore: Rescore, tol: Tolerances) -> list
     differing = {
         name: (e.criteria_native[name], canonical[name])
         for name in ("aic", "aicc", "bic")
-        if name in e.criteria_native
-        and math.isfinite(e.criteria_native[name])
-        and abs(e.criteria_native[name] - canonical[name]) > tol.criterion_atol
+        if name in e.criteria_native and _beyond_rounding(e.criteria_native[name], canonical[name])
     }
     if differing:
         listed = "; ".join(f"{n} {a:.4f} vs {b:.4f}" for n, (a, b) in differing.items())
@@ -410,7 +414,7 @@ def diagnose(
         rescore = rescores.get(key)
         if rescore is None:
             continue
-        findings += _definition_findings(e, rescore, tol)
+        findings += _definition_findings(e, rescore)
         findings += _boundary_findings(spec, key, e.params, tol, outside_only=True)
         if reference is None:
             continue

@@ -37,10 +37,6 @@ REASONS: dict[str, str] = {
         "value before it counts as having stopped short: 0.01 is 0.02 AIC units, a hundredth "
         "of the 2-unit difference that Burnham & Anderson (2002) treat as meaningful."
     ),
-    "criterion_atol": (
-        "Two information-criterion values under the same definition agree within this "
-        "(2 x loglike_atol)."
-    ),
     "root_margin": (
         "A root of an AR or MA polynomial whose modulus is below 1 + root_margin is treated "
         "as on the boundary of the stationary or invertible region (common practice, no "
@@ -68,8 +64,6 @@ class Tolerances:
         Relative tolerance on sigma2. Default 0.01.
     loglike_atol : float
         Allowed shortfall below the best reference log-likelihood. Default 0.01.
-    criterion_atol : float
-        Allowed difference between information criteria under one definition. Default 0.02.
     root_margin : float
         Roots with modulus below ``1 + root_margin`` are on the boundary. Default 0.02.
     min_independent_engines : int
@@ -85,7 +79,6 @@ class Tolerances:
     parameter_atol: float = 2e-3
     sigma2_rtol: float = 0.01
     loglike_atol: float = 0.01
-    criterion_atol: float = 0.02
     root_margin: float = 0.02
     min_independent_engines: int = 2
 

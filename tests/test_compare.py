@@ -1,0 +1,190 @@
+"""Diagnosis of disagreements, on constructed estimates (no fitting).
+
+These check the decision rules of ``compare.diagnose`` on hand-made numbers; the checks of
+the whole audit against published values are in ``test_audit.py``.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+
+from forecastaudit.compare import Rescore, diagnose, polynomial_roots
+from forecastaudit.estimators.base import CapturedWarning, Estimate
+from forecastaudit.spec import ModelSpec
+from forecastaudit.tolerances import Tolerances
+
+SPEC = ModelSpec(order=(0, 1, 1), seasonal=(0, 1, 1), period=12)
+BEST = {"ma_lag1": -0.40, "sma_lag12": -0.56, "sigma2": 0.00135}
+SE = {"ma_lag1": 0.09, "sma_lag12": 0.07, "sigma2": 0.00017}
+
+
+def _estimate(key: str, engine: str, params: dict[str, float], **kw: object) -> Estimate:
+    defaults: dict[str, object] = {
+        "package": key,
+        "version": "0",
+        "status": "ok",
+        "spec": SPEC,
+        "params": dict(params),
+        "sigma2_reported": params["sigma2"],
+        "sigma2_definition": "maximum likelihood (a parameter of the fit)",
+        "loglike_native": 244.70,
+        "n_used_native": 131,
+        "k_counted_native": 3,
+        "criteria_native": {},
+        "n_w": 131,
+        "k": 3,
+        "converged": True,
+    }
+    defaults.update(kw)
+    return Estimate(key=key, engine=engine, **defaults)  # type: ignore[arg-type]
+
+
+def _reference() -> Estimate:
+    return _estimate("reference", "forecastaudit-reference", BEST)
+
+
+def _run(
+    estimates: dict[str, Estimate], rescores: dict[str, Rescore], tol: Tolerances | None = None
+):
+    return diagnose(SPEC, estimates, rescores, _reference(), SE, tol or Tolerances())
+
+
+def _kinds(findings, estimator=None):
+    return {(f.kind, f.severity) for f in findings if estimator is None or f.estimator == estimator}
+
+
+def test_agreeing_independent_engines_pass():
+    estimates = {
+        "a": _estimate("a", "engine-1", BEST),
+        "b": _estimate("b", "engine-2", {**BEST, "ma_lag1": -0.4005}),
+    }
+    rescores = {k: Rescore(244.70, 244.70, 0.0) for k in estimates}
+    findings = _run(estimates, rescores)
+    assert not [f for f in findings if f.severity == "fail"]
+    count = next(f for f in findings if f.kind == "engine-count")
+    assert count.values["agreeing"] == ["engine-1", "engine-2"]
+
+
+def test_wrappers_of_one_engine_count_once():
+    estimates = {
+        "a": _estimate("a", "engine-1", BEST),
+        "b": _estimate("b", "engine-1", BEST),
+    }
+    rescores = {k: Rescore(244.70, 244.70, 0.0) for k in estimates}
+    findings = _run(estimates, rescores)
+    count = next(f for f in findings if f.kind == "engine-count")
+    assert count.severity == "fail"
+    assert count.values["agreeing"] == ["engine-1"]
+
+
+def test_stopped_short_is_named_with_its_gap():
+    short = {"ma_lag1": -0.377, "sma_lag12": -0.572, "sigma2": 0.001349}
+    estimates = {
+        "a": _estimate("a", "engine-1", BEST),
+        "b": _estimate("b", "engine-2", short, converged=False, optimizer={"code": 2}),
+    }
+    rescores = {"a": Rescore(244.70, 244.70, 0.0), "b": Rescore(244.64, 244.65, 0.05)}
+    findings = _run(estimates, rescores)
+    kinds = _kinds(findings, "b")
+    assert ("stopped-short", "fail") in kinds
+    assert ("not-converged", "warn") in kinds
+    stopped = next(f for f in findings if f.kind == "stopped-short")
+    assert stopped.values["gap"] == pytest.approx(0.05)
+    # 0.023 / 0.09 standard errors, beyond the default tenth of a standard error
+    assert stopped.values["differences"]["ma_lag1"]["in_standard_errors"] == pytest.approx(
+        0.023 / 0.09
+    )
+
+
+def test_equal_likelihood_different_parameters_is_a_flat_direction():
+    moved = {**BEST, "ma_lag1": -0.45}
+    estimates = {"a": _estimate("a", "engine-1", BEST), "b": _estimate("b", "engine-2", moved)}
+    rescores = {"a": Rescore(244.70, 244.70, 0.0), "b": Rescore(244.70, 244.698, 0.002)}
+    findings = _run(estimates, rescores)
+    assert ("flat-likelihood", "warn") in _kinds(findings, "b")
+    assert ("stopped-short", "fail") not in _kinds(findings, "b")
+
+
+def test_tolerance_in_standard_errors_with_absolute_floor():
+    tol = Tolerances()
+    assert tol.parameter_tolerance(0.09) == pytest.approx(0.009)
+    assert tol.parameter_tolerance(0.001) == tol.parameter_atol
+    assert tol.parameter_tolerance(math.nan) == tol.parameter_atol
+
+
+def test_definition_differences_are_explained_not_failed():
+    e = _estimate(
+        "b",
+        "engine-2",
+        BEST,
+        loglike_native=232.75,
+        loglike_definition="exact diffuse initialisation",
+        sigma2_reported=0.00136941,
+        sigma2_definition="SSR / (n_w - 2), degrees-of-freedom adjusted",
+        criteria_native={"aicc": -483.2215},
+        n_used_native=144,
+    )
+    estimates = {"a": _estimate("a", "engine-1", BEST), "b": e}
+    # pmdarima's aicc() with n = len(y) = 144 against n_w = 131 on the log airline model:
+    # -483.2215 against -483.2040 (measured, estimator-facts.md).
+    rescores = {"a": Rescore(244.70, 244.70, 0.0), "b": Rescore(244.6964851, 244.6964851, 0.0)}
+    findings = _run(estimates, rescores)
+    quantities = {f.quantity for f in findings if f.kind == "definition-difference"}
+    assert quantities == {"loglike", "criteria", "sigma2"}
+    assert all(f.severity == "info" for f in findings if f.kind == "definition-difference")
+
+
+def test_extra_terms_are_a_different_model():
+    e = _estimate(
+        "b", "engine-2", BEST, fitted_model="ARIMA(0,1,1)x(0,1,1)12 with extra terms: intercept"
+    )
+    estimates = {"a": _estimate("a", "engine-1", BEST), "b": e}
+    rescores = {k: Rescore(244.70, 244.70, 0.0) for k in estimates}
+    assert ("different-model", "fail") in _kinds(_run(estimates, rescores), "b")
+
+
+def test_status_and_event_findings():
+    estimates = {
+        "a": _estimate(
+            "a", "engine-1", BEST, warnings=[CapturedWarning("UserWarning", "x", "f:1")]
+        ),
+        "gone": Estimate("gone", "engine-9", "gone", None, "unavailable", reason="not installed"),
+        "broken": Estimate("broken", "engine-8", "broken", "1", "failed", reason="ValueError: x"),
+    }
+    rescores = {"a": Rescore(244.70, 244.70, 0.0)}
+    kinds = _kinds(_run(estimates, rescores))
+    assert ("unavailable", "info") in kinds
+    assert ("fit-failed", "warn") in kinds
+    assert ("library-warnings", "info") in kinds
+
+
+def test_ma_root_near_one_after_differencing_flags_overdifferencing():
+    # ma_lag1 = -0.99: theta(B) = 1 - 0.99 B has its root at 1/0.99 = 1.0101, within the
+    # default margin of the unit circle (closed form).
+    near = {**BEST, "ma_lag1": -0.99}
+    reference = _estimate("reference", "forecastaudit-reference", near)
+    estimates = {"a": _estimate("a", "engine-1", near)}
+    findings = diagnose(SPEC, estimates, {"a": Rescore(1.0, 1.0, 0.0)}, reference, SE, Tolerances())
+    kinds = _kinds(findings, "reference")
+    assert ("near-boundary", "warn") in kinds
+    assert ("possible-overdifferencing", "warn") in kinds
+
+
+def test_polynomial_roots_closed_form():
+    # (1 - 0.5 B): root 2; seasonal MA 1 + 0.25 B^12 in its own variable: root -4.
+    spec = ModelSpec(order=(1, 0, 0), seasonal=(0, 0, 1), period=12)
+    roots = polynomial_roots(spec, {"ar_lag1": 0.5, "sma_lag12": 0.25})
+    assert np.allclose(roots["ar"], [2.0])
+    assert np.allclose(roots["sma"], [-4.0])
+    assert roots["ma"].size == 0
+
+
+def test_implied_trend_with_two_differences():
+    spec = ModelSpec(order=(0, 1, 1), seasonal=(0, 1, 1), period=12, mean=True)
+    params = {**BEST, "mu": 0.001}
+    reference = Estimate("reference", "r", "r", "0", "ok", spec=spec, params=params, n_w=131, k=4)
+    findings = diagnose(spec, {}, {}, reference, SE, Tolerances())
+    assert ("implied-trend", "warn") in _kinds(findings)
