@@ -113,6 +113,31 @@ class AuditReport:
             write_text_atomic(path, text)
         return text
 
+    def to_html(self, path: str | None = None) -> str:
+        """The full HTML report (one self-contained file); also written to ``path`` if given."""
+        from .record import write_text_atomic
+        from .report.html import render_html
+
+        text = render_html(self)
+        if path is not None:
+            write_text_atomic(path, text)
+        return text
+
+    def to_markdown(self, path: str | None = None) -> str:
+        """The Markdown report, for pasting into a change request; written to ``path`` if given."""
+        from .record import write_text_atomic
+        from .report.markdown import render_markdown
+
+        text = render_markdown(self)
+        if path is not None:
+            write_text_atomic(path, text)
+        return text
+
+    def _repr_html_(self) -> str:
+        from .report.html import render_compact_html
+
+        return render_compact_html(self)
+
     def __str__(self) -> str:
         lines = [
             f"forecastaudit: {self.spec} on '{self.series.name}' "
