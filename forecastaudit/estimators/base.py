@@ -286,6 +286,43 @@ def _plain(value: Any) -> Any:
     return repr(value)
 
 
+@dataclass
+class _Captured:
+    result: Any
+    error: str
+    trace: str
+    warnings: list[CapturedWarning]
+    output: str
+    seconds: float
+
+
+def _run_captured(func: Any, *args: Any) -> _Captured:
+    """Call ``func``, keeping its warnings and printed output; a raised error is returned."""
+    out_buffer, err_buffer = io.StringIO(), io.StringIO()
+    error, trace, result = "", "", None
+    start = time.perf_counter()
+    with (
+        warnings.catch_warnings(record=True) as caught,
+        contextlib.redirect_stdout(out_buffer),
+        contextlib.redirect_stderr(err_buffer),
+    ):
+        warnings.simplefilter("always")
+        try:
+            result = func(*args)
+        except Exception as exc:  # the library's failure is a finding, not a crash
+            error = f"{type(exc).__name__}: {exc}"
+            trace = traceback.format_exc(limit=3)
+    seconds = time.perf_counter() - start
+    captured = [
+        CapturedWarning(
+            category=w.category.__name__, message=str(w.message), source=f"{w.filename}:{w.lineno}"
+        )
+        for w in caught
+    ]
+    printed = (out_buffer.getvalue() + err_buffer.getvalue()).strip()
+    return _Captured(result, error, trace, captured, printed, seconds)
+
+
 class EstimatorAdapter(ABC):
     """Base class of the estimator adapters.
 
@@ -369,38 +406,15 @@ class EstimatorAdapter(ABC):
         if unsupported is not None:
             return Estimate(**base, status="unsupported", reason=unsupported)
 
-        out_buffer, err_buffer = io.StringIO(), io.StringIO()
-        start = time.perf_counter()
-        with (
-            warnings.catch_warnings(record=True) as caught,
-            contextlib.redirect_stdout(out_buffer),
-            contextlib.redirect_stderr(err_buffer),
-        ):
-            warnings.simplefilter("always")
-            try:
-                result = self._fit(np.array(y, dtype=float, copy=True), spec)
-                error = None
-            except Exception as exc:  # the library's failure is a finding, not a crash
-                result = None
-                error = exc
-                trace = traceback.format_exc(limit=3)
-        seconds = time.perf_counter() - start
-        captured = [
-            CapturedWarning(
-                category=w.category.__name__,
-                message=str(w.message),
-                source=f"{w.filename}:{w.lineno}",
-            )
-            for w in caught
-        ]
-        printed = (out_buffer.getvalue() + err_buffer.getvalue()).strip()
-        if result is None:
+        call = _run_captured(self._fit, np.array(y, dtype=float, copy=True), spec)
+        result, captured, printed, seconds = call.result, call.warnings, call.output, call.seconds
+        if call.error or result is None:
             return Estimate(
                 **base,
                 status="failed",
-                reason=f"{type(error).__name__}: {error}",
+                reason=call.error or "the fit returned nothing",
                 warnings=captured,
-                output=(printed + "\n" + trace).strip(),
+                output=(printed + "\n" + call.trace).strip(),
                 seconds=seconds,
             )
         n_w = len(y) - spec.lost_to_differencing
