@@ -12,9 +12,14 @@ from typing import Any, Literal
 
 import numpy as np
 
-from ..conventions import intercept_to_mean, trend_scale
+from ..conventions import intercept_to_mean, mean_to_intercept, trend_scale
 from ..spec import ModelSpec
-from .base import FitOutput
+from .base import FitOutput, ForecastOutput
+
+INTERVAL_METHOD = (
+    "Gaussian: point forecast +/- z x the Kalman-filter forecast standard error at the "
+    "maximum-likelihood sigma2 (parameter uncertainty not included)"
+)
 
 ENGINE = "statsmodels-statespace"
 
@@ -163,6 +168,7 @@ def to_fit_output(
     n_used: int | None = None,
     notes: list[str] | None = None,
     overridden_defaults: dict[str, Any] | None = None,
+    native: Any = None,
 ) -> FitOutput:
     """A :class:`FitOutput` from a SARIMAXResults.
 
@@ -187,5 +193,44 @@ def to_fit_output(
         conversions=read["conversions"],
         notes=list(notes or []),
         overridden_defaults=dict(overridden_defaults or {}),
-        native=result,
+        native=result if native is None else native,
+    )
+
+
+def native_vector(param_names: list[str], spec: ModelSpec, params: dict[str, float]) -> np.ndarray:
+    """Canonical parameters as a SARIMAX parameter vector (``trend='c'`` for the mean).
+
+    The inverse of :func:`canonical_coefficients` with ``mean_kind="intercept"``.
+    """
+    values = []
+    for name in param_names:
+        match = _LAG_NAME.match(name)
+        if match:
+            kind, seasonal, lag = match.groups()
+            values.append(params[f"{'s' if seasonal else ''}{kind}_lag{lag}"])
+        elif name == "intercept":
+            values.append(mean_to_intercept(params["mu"], spec, params))
+        elif name == "sigma2":
+            values.append(params["sigma2"])
+        else:
+            raise KeyError(f"no canonical value for SARIMAX parameter {name!r}")
+    return np.array(values, dtype=float)
+
+
+def statespace_forecast(result: Any, steps: int, levels: tuple[float, ...]) -> ForecastOutput:
+    """Forecast and Gaussian intervals from a SARIMAXResults, as its users get them."""
+    forecast = result.get_forecast(steps)
+    lower, upper = {}, {}
+    for level in levels:
+        bounds = np.asarray(forecast.conf_int(alpha=1.0 - level / 100.0))
+        lower[level], upper[level] = bounds[:, 0], bounds[:, 1]
+    names = list(result.model.param_names)
+    return ForecastOutput(
+        mean=np.asarray(forecast.predicted_mean, dtype=float),
+        lower=lower,
+        upper=upper,
+        se=np.asarray(forecast.se_mean, dtype=float),
+        interval_method=INTERVAL_METHOD,
+        sigma2_used=float(np.asarray(result.params)[names.index("sigma2")]),
+        residuals=np.asarray(result.resid, dtype=float),
     )

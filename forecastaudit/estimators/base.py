@@ -32,6 +32,8 @@ __all__ = [
     "Estimate",
     "EstimatorAdapter",
     "FitOutput",
+    "Forecast",
+    "ForecastOutput",
     "available_estimators",
     "get_adapter",
     "register_estimator",
@@ -60,6 +62,9 @@ class Capabilities:
         Whether the library offers an automatic order search.
     intervals : bool
         Whether the library gives forecast intervals.
+    fixed_params : bool
+        Whether the adapter can filter and forecast at given canonical parameters (used to
+        forecast the reference optimum and to get its residuals).
     """
 
     mean_differences: frozenset[int] = frozenset()
@@ -68,6 +73,7 @@ class Capabilities:
     exog: bool = False
     order_search: bool = False
     intervals: bool = True
+    fixed_params: bool = False
 
     def to_dict(self) -> dict[str, Any]:
         """JSON-ready form."""
@@ -78,6 +84,7 @@ class Capabilities:
             "exog": self.exog,
             "order_search": self.order_search,
             "intervals": self.intervals,
+            "fixed_params": self.fixed_params,
         }
 
 
@@ -265,6 +272,124 @@ class Estimate:
             "output": self.output,
             "seconds": self.seconds,
         }
+
+
+@dataclass
+class ForecastOutput:
+    """What an adapter's forecast hands back, on the scale the library was given.
+
+    Attributes
+    ----------
+    mean : numpy.ndarray
+        Point forecasts for steps 1..h.
+    lower, upper : dict of float to numpy.ndarray
+        Interval bounds by level in percent (80.0, 95.0, ...).
+    se : numpy.ndarray or None
+        Forecast standard errors when the library gives them.
+    interval_method : str
+        How the library builds its intervals.
+    sigma2_used : float
+        The innovation variance the intervals use.
+    residuals : numpy.ndarray or None
+        In-sample one-step residuals (full length; the start-up values are dropped later).
+    """
+
+    mean: np.ndarray
+    lower: dict[float, np.ndarray]
+    upper: dict[float, np.ndarray]
+    se: np.ndarray | None
+    interval_method: str
+    sigma2_used: float
+    residuals: np.ndarray | None = None
+
+
+@dataclass
+class Forecast:
+    """One estimator's forecast, on the transformed scale (forecastaudit back-transforms).
+
+    ``status`` is ``"ok"`` or ``"failed"`` (with ``reason``); ``se`` is the library's forecast
+    standard error or, when it gives none, the one implied by its widest Gaussian interval.
+    """
+
+    key: str
+    status: str
+    steps: int
+    levels: tuple[float, ...]
+    mean: np.ndarray = field(default_factory=lambda: np.empty(0))
+    lower: dict[float, np.ndarray] = field(default_factory=dict)
+    upper: dict[float, np.ndarray] = field(default_factory=dict)
+    se: np.ndarray = field(default_factory=lambda: np.empty(0))
+    se_derived: bool = False
+    interval_method: str = ""
+    sigma2_used: float = math.nan
+    residuals: np.ndarray | None = None
+    reason: str = ""
+    warnings: list[CapturedWarning] = field(default_factory=list)
+    output: str = ""
+    seconds: float = 0.0
+
+    @property
+    def ok(self) -> bool:
+        """True when the forecast was produced."""
+        return self.status == "ok"
+
+    def to_dict(self) -> dict[str, Any]:
+        """JSON-ready form (transformed scale)."""
+        return {
+            "key": self.key,
+            "status": self.status,
+            "reason": self.reason,
+            "steps": self.steps,
+            "levels": list(self.levels),
+            "mean": _plain(self.mean),
+            "se": _plain(self.se),
+            "se_derived": self.se_derived,
+            "lower": {f"{k:g}": _plain(v) for k, v in self.lower.items()},
+            "upper": {f"{k:g}": _plain(v) for k, v in self.upper.items()},
+            "interval_method": self.interval_method,
+            "sigma2_used": self.sigma2_used,
+            "warnings": [w.to_dict() for w in self.warnings],
+            "seconds": self.seconds,
+        }
+
+
+def _forecast_from(key: str, steps: int, levels: tuple[float, ...], call: _Captured) -> Forecast:
+    from scipy.stats import norm
+
+    if call.error or call.result is None:
+        return Forecast(
+            key=key,
+            status="failed",
+            steps=steps,
+            levels=levels,
+            reason=call.error or "the forecast returned nothing",
+            warnings=call.warnings,
+            output=(call.output + "\n" + call.trace).strip(),
+            seconds=call.seconds,
+        )
+    out: ForecastOutput = call.result
+    se, derived = out.se, False
+    if se is None:
+        widest = max(levels)
+        z = norm.ppf(0.5 + widest / 200.0)
+        se, derived = (out.upper[widest] - out.lower[widest]) / (2.0 * z), True
+    return Forecast(
+        key=key,
+        status="ok",
+        steps=steps,
+        levels=levels,
+        mean=np.asarray(out.mean, dtype=float),
+        lower={k: np.asarray(v, dtype=float) for k, v in out.lower.items()},
+        upper={k: np.asarray(v, dtype=float) for k, v in out.upper.items()},
+        se=np.asarray(se, dtype=float),
+        se_derived=derived,
+        interval_method=out.interval_method,
+        sigma2_used=float(out.sigma2_used),
+        residuals=None if out.residuals is None else np.asarray(out.residuals, dtype=float),
+        warnings=call.warnings,
+        output=call.output,
+        seconds=call.seconds,
+    )
 
 
 def _plain(value: Any) -> Any:
@@ -481,6 +606,54 @@ class EstimatorAdapter(ABC):
     @abstractmethod
     def _fit(self, y: np.ndarray, spec: ModelSpec) -> FitOutput:
         """Translate the spec, call the library on ``y``, translate the result."""
+
+    # ------------------------------------------------------------------ forecasts
+    def forecast(self, estimate: Estimate, steps: int, levels: tuple[float, ...]) -> Forecast:
+        """Forecast ``steps`` ahead from a fitted estimate, with intervals at ``levels`` (%).
+
+        Uses the library's own forecast and interval method, as its users would. Never
+        raises for a library failure; the forecast's status says what happened.
+        """
+        if not estimate.ok or estimate.native is None:
+            return Forecast(
+                key=self.key,
+                status="failed",
+                steps=steps,
+                levels=levels,
+                reason=f"no fitted model to forecast from ({estimate.status})",
+            )
+        call = _run_captured(self._forecast, estimate.native, steps, levels)
+        return _forecast_from(self.key, steps, levels, call)
+
+    def forecast_at(
+        self,
+        y: np.ndarray,
+        spec: ModelSpec,
+        params: dict[str, float],
+        steps: int,
+        levels: tuple[float, ...],
+    ) -> Forecast:
+        """Filter ``y`` at given canonical parameters and forecast (``fixed_params`` only)."""
+        if not self.capabilities.fixed_params:
+            raise EstimatorError(f"{self.key} cannot forecast at given parameters.")
+        call = _run_captured(
+            self._forecast_at, np.array(y, dtype=float, copy=True), spec, params, steps, levels
+        )
+        return _forecast_from(self.key, steps, levels, call)
+
+    def _forecast(self, native: Any, steps: int, levels: tuple[float, ...]) -> ForecastOutput:
+        """Forecast with the library from its fitted object ``native``."""
+        raise NotImplementedError(f"{self.key} does not forecast")
+
+    def _forecast_at(
+        self,
+        y: np.ndarray,
+        spec: ModelSpec,
+        params: dict[str, float],
+        steps: int,
+        levels: tuple[float, ...],
+    ) -> ForecastOutput:
+        raise NotImplementedError(f"{self.key} cannot forecast at given parameters")
 
 
 # ---------------------------------------------------------------------- registry

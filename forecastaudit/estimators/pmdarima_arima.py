@@ -12,7 +12,7 @@ import numpy as np
 
 from ..spec import ModelSpec
 from . import _statespace
-from .base import Capabilities, EstimatorAdapter, FitOutput, register_estimator
+from .base import Capabilities, EstimatorAdapter, FitOutput, ForecastOutput, register_estimator
 
 
 @register_estimator
@@ -54,4 +54,26 @@ class PmdarimaArima(EstimatorAdapter):
                 "(n = observations after the burn-in)"
             ],
             overridden_defaults={} if spec.mean else {"with_intercept": True},
+            native=model,
+        )
+
+    def _forecast(self, native, steps: int, levels: tuple[float, ...]) -> ForecastOutput:  # type: ignore[no-untyped-def]
+        lower, upper = {}, {}
+        mean = None
+        for level in levels:
+            mean, bounds = native.predict(
+                n_periods=steps, return_conf_int=True, alpha=1.0 - level / 100.0
+            )
+            bounds = np.asarray(bounds)
+            lower[level], upper[level] = bounds[:, 0], bounds[:, 1]
+        result = native.arima_res_
+        names = list(result.model.param_names)
+        return ForecastOutput(
+            mean=np.asarray(mean, dtype=float),
+            lower=lower,
+            upper=upper,
+            se=None,
+            interval_method=_statespace.INTERVAL_METHOD + "; via pmdarima predict()",
+            sigma2_used=float(np.asarray(result.params)[names.index("sigma2")]),
+            residuals=np.asarray(native.resid(), dtype=float),
         )

@@ -12,7 +12,7 @@ import numpy as np
 
 from ..spec import ModelSpec
 from . import _statespace
-from .base import Capabilities, EstimatorAdapter, FitOutput, register_estimator
+from .base import Capabilities, EstimatorAdapter, FitOutput, ForecastOutput, register_estimator
 
 
 @register_estimator
@@ -54,4 +54,28 @@ class SktimeArima(EstimatorAdapter):
             criteria=criteria,
             notes=["sktime reports statsmodels' aic, aicc and bic (not pmdarima's aicc)"],
             overridden_defaults={} if spec.mean else {"with_intercept": True},
+            native=forecaster,
+        )
+
+    def _forecast(self, native, steps: int, levels: tuple[float, ...]) -> ForecastOutput:  # type: ignore[no-untyped-def]
+        fh = list(range(1, steps + 1))
+        mean = np.asarray(native.predict(fh=fh), dtype=float)
+        coverage = [level / 100.0 for level in levels]
+        intervals = native.predict_interval(fh=fh, coverage=coverage)
+        lower, upper = {}, {}
+        for level, cov in zip(levels, coverage, strict=True):
+            columns = [c for c in intervals.columns if abs(float(c[1]) - cov) < 1e-12]
+            frame = intervals[columns]
+            lower[level] = frame.xs("lower", axis=1, level=-1).to_numpy().ravel()
+            upper[level] = frame.xs("upper", axis=1, level=-1).to_numpy().ravel()
+        result = native._forecaster.arima_res_
+        names = list(result.model.param_names)
+        return ForecastOutput(
+            mean=mean,
+            lower=lower,
+            upper=upper,
+            se=None,
+            interval_method=_statespace.INTERVAL_METHOD + "; via sktime predict_interval()",
+            sigma2_used=float(np.asarray(result.params)[names.index("sigma2")]),
+            residuals=np.asarray(result.resid, dtype=float),
         )

@@ -18,7 +18,7 @@ import numpy as np
 
 from ..conventions import df_adjusted_to_ml_sigma2, trend_scale
 from ..spec import ModelSpec
-from .base import Capabilities, EstimatorAdapter, FitOutput, register_estimator
+from .base import Capabilities, EstimatorAdapter, FitOutput, ForecastOutput, register_estimator
 
 _NAME = re.compile(r"^(ar|ma|sar|sma)(\d+)$")
 # scipy.optimize result status codes, as statsforecast stores them in model_["code"].
@@ -112,4 +112,28 @@ class StatsforecastArima(EstimatorAdapter):
             conversions=conversions,
             overridden_defaults=overridden,
             native=model,
+        )
+
+    def _forecast(self, native, steps: int, levels: tuple[float, ...]) -> ForecastOutput:  # type: ignore[no-untyped-def]
+        levels_int = [int(level) if float(level).is_integer() else level for level in levels]
+        out = native.predict(h=steps, level=levels_int)
+        lower = {
+            lv: np.asarray(out[f"lo-{li}"], dtype=float)
+            for lv, li in zip(levels, levels_int, strict=True)
+        }
+        upper = {
+            lv: np.asarray(out[f"hi-{li}"], dtype=float)
+            for lv, li in zip(levels, levels_int, strict=True)
+        }
+        return ForecastOutput(
+            mean=np.asarray(out["mean"], dtype=float),
+            lower=lower,
+            upper=upper,
+            se=None,
+            interval_method=(
+                "Gaussian: point forecast +/- z x the forecast standard error at the reported "
+                "(degrees-of-freedom adjusted) sigma2"
+            ),
+            sigma2_used=float(native.model_["sigma2"]),
+            residuals=np.asarray(native.model_["residuals"], dtype=float),
         )

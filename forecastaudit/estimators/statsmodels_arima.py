@@ -13,7 +13,7 @@ import numpy as np
 
 from ..spec import ModelSpec
 from . import _statespace
-from .base import Capabilities, EstimatorAdapter, FitOutput, register_estimator
+from .base import Capabilities, EstimatorAdapter, FitOutput, ForecastOutput, register_estimator
 
 
 def _trend_for(spec: ModelSpec) -> str | list[int]:
@@ -58,3 +58,6 @@ class StatsmodelsArima(EstimatorAdapter):
         # The library adds a constant by default when d + D = 0; the spec decides instead.
         overridden = {"trend": "c"} if spec.n_differences == 0 and not spec.mean else {}
         return _statespace.to_fit_output(result, spec, mean_kind, overridden_defaults=overridden)
+
+    def _forecast(self, native, steps: int, levels: tuple[float, ...]) -> ForecastOutput:  # type: ignore[no-untyped-def]
+        return _statespace.statespace_forecast(native, steps, levels)

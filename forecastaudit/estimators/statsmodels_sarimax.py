@@ -11,7 +11,7 @@ import numpy as np
 
 from ..spec import ModelSpec
 from . import _statespace
-from .base import Capabilities, EstimatorAdapter, FitOutput, register_estimator
+from .base import Capabilities, EstimatorAdapter, FitOutput, ForecastOutput, register_estimator
 
 
 @register_estimator
@@ -30,17 +30,35 @@ class StatsmodelsSarimax(EstimatorAdapter):
         exog=True,
         order_search=False,
         intervals=True,
+        fixed_params=True,
     )
 
-    def _fit(self, y: np.ndarray, spec: ModelSpec) -> FitOutput:
+    @staticmethod
+    def _model(y: np.ndarray, spec: ModelSpec):  # type: ignore[no-untyped-def]
         from statsmodels.tsa.statespace.sarimax import SARIMAX
 
-        seasonal_order = (*spec.seasonal, spec.period or 0)
-        model = SARIMAX(
+        return SARIMAX(
             y,
             order=spec.order,
-            seasonal_order=seasonal_order,
+            seasonal_order=(*spec.seasonal, spec.period or 0),
             trend="c" if spec.mean else "n",
         )
-        result = model.fit(disp=False)
+
+    def _fit(self, y: np.ndarray, spec: ModelSpec) -> FitOutput:
+        result = self._model(y, spec).fit(disp=False)
         return _statespace.to_fit_output(result, spec, "intercept")
+
+    def _forecast(self, native, steps: int, levels: tuple[float, ...]) -> ForecastOutput:  # type: ignore[no-untyped-def]
+        return _statespace.statespace_forecast(native, steps, levels)
+
+    def _forecast_at(
+        self,
+        y: np.ndarray,
+        spec: ModelSpec,
+        params: dict[str, float],
+        steps: int,
+        levels: tuple[float, ...],
+    ) -> ForecastOutput:
+        model = self._model(y, spec)
+        result = model.filter(_statespace.native_vector(list(model.param_names), spec, params))
+        return _statespace.statespace_forecast(result, steps, levels)
