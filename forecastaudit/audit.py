@@ -3,8 +3,7 @@
 from __future__ import annotations
 
 import datetime as _dt
-import math
-from collections.abc import Iterable, Mapping
+from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -12,9 +11,20 @@ import pandas as pd
 
 from .compare import REFERENCE_KEY, Rescore, diagnose, likelihood_table, parameter_table
 from .conventions import information_criteria, parameter_names
-from .errors import EstimatorError, SpecError
-from .estimators import Estimate, available_estimators, get_adapter
+from .errors import EstimatorError, SeriesError, SpecError
+from .estimators import Estimate, EstimatorAdapter, available_estimators, get_adapter
+from .estimators.base import Forecast
 from .findings import Finding
+from .holdout import (
+    HoldoutResult,
+    OriginalScaleForecast,
+    back_transform,
+    forecast_findings,
+    point_kind,
+    residual_checks,
+    run_holdout,
+    spread_band,
+)
 from .series import PreparedSeries, check_length, prepare_series
 from .spec import ModelSpec
 from .tolerances import Tolerances
@@ -54,6 +64,16 @@ class AuditReport:
         criteria as reported and on the canonical definition.
     findings : list of Finding
         Most severe first.
+    forecasts : dict of str to OriginalScaleForecast
+        Forecasts from the full series on the original scale (median and bias-adjusted mean,
+        intervals), per estimator and for the reference optimum.
+    spread : pandas.DataFrame or None
+        Per horizon, the range of point forecasts across independent engines beside the
+        reference interval width.
+    residual_tests : pandas.DataFrame or None
+        Ljung-Box tests of each estimator's residuals.
+    holdout : HoldoutResult or None
+        Holdout accuracy and pairwise comparisons, when a holdout was asked for.
     created : str
         UTC time the audit finished (ISO 8601).
     """
@@ -67,6 +87,11 @@ class AuditReport:
     findings: list[Finding]
     standard_errors: dict[str, float] = field(default_factory=dict)
     reference_starts: list[dict[str, Any]] = field(default_factory=list)
+    forecasts: dict[str, OriginalScaleForecast] = field(default_factory=dict)
+    forecasts_transformed: dict[str, Forecast] = field(default_factory=dict)
+    spread: pd.DataFrame | None = None
+    residual_tests: pd.DataFrame | None = None
+    holdout: HoldoutResult | None = None
     options: dict[str, Any] = field(default_factory=dict)
     created: str = ""
 
@@ -241,6 +266,10 @@ def audit(
     *,
     period: int | None = None,
     name: str | None = None,
+    horizon: int | None = None,
+    levels: Sequence[float] = (80.0, 95.0),
+    holdout: int | None = None,
+    origins: int = 1,
     progress: bool = False,
 ) -> AuditReport:
     """Fit ``spec`` through every estimator, re-score under the reference likelihood, diagnose.
@@ -261,6 +290,17 @@ def audit(
         Seasonal period of the series when the index does not imply one (or to override it).
     name : str, optional
         Display name of the series.
+    horizon : int, optional
+        Steps to forecast from the full series (default: the period, or 12 without one).
+    levels : sequence of float
+        Prediction-interval levels in percent (default 80 and 95).
+    holdout : int, optional
+        Hold out this many final observations per origin: fit on the rest, forecast them and
+        score every estimator's accuracy (MAE, RMSE, MAPE, MASE, coverage, interval score).
+    origins : int
+        Number of forecast origins for the holdout (rolling origin): the last
+        ``origins * holdout`` observations are split into consecutive windows, each
+        forecast from a fit on everything before it. Default 1.
     progress : bool
         Show a progress bar (tqdm) over the estimators.
 
@@ -316,6 +356,43 @@ def audit(
     }
     findings = diagnose(spec, estimates, rescores, reference, standard_errors, tol)
     all_estimates = {**estimates, REFERENCE_KEY: reference}
+
+    # Forecasts from the full series, with each library's own intervals.
+    steps = horizon or (spec.m if spec.m > 1 else 12)
+    level_tuple = _check_levels(levels)
+    transformed: dict[str, Forecast] = {}
+    for key, e in estimates.items():
+        if e.ok:
+            fc = get_adapter(key).forecast(e, steps, level_tuple)
+            if fc.ok:
+                transformed[key] = fc
+            else:
+                findings.append(
+                    Finding(
+                        "fit-failed",
+                        "warn",
+                        key,
+                        "forecast",
+                        f"{key} could not forecast: {fc.reason}",
+                    )
+                )
+    ref_fc = _forecast_at_reference(y_t, spec, reference.params, steps, level_tuple)
+    if ref_fc is not None:
+        transformed[REFERENCE_KEY] = ref_fc
+    forecasts = {k: back_transform(fc, spec) for k, fc in transformed.items()}
+    engines = {k: all_estimates[k].engine for k in forecasts}
+    spread = spread_band(forecasts, engines, REFERENCE_KEY, max(level_tuple)) if forecasts else None
+    findings += forecast_findings(forecasts, transformed, estimates, REFERENCE_KEY, tol)
+    residuals = {k: fc.residuals for k, fc in transformed.items() if fc.residuals is not None}
+    residual_table = residual_checks(residuals, spec, len(series)) if residuals else None
+
+    holdout_result = None
+    if holdout:
+        holdout_result = _run_holdout(series, spec, keys, holdout, origins, level_tuple)
+        for key, reason in holdout_result.failures.items():
+            findings.append(Finding("holdout-failure", "warn", key, "holdout", reason))
+    order = {"fail": 0, "warn": 1, "info": 2}
+    findings.sort(key=lambda f: order[f.severity])
     for key, e in all_estimates.items():
         if key in rescores and e.ok and e.n_w:
             e.criteria = information_criteria(rescores[key].loglike, e.k or 0, e.n_w)
@@ -329,10 +406,87 @@ def audit(
         findings=findings,
         standard_errors=standard_errors,
         reference_starts=_start_rows(fit),
-        options={"estimators": keys},
+        forecasts=forecasts,
+        forecasts_transformed=transformed,
+        spread=spread,
+        residual_tests=residual_table,
+        holdout=holdout_result,
+        options={
+            "estimators": keys,
+            "horizon": steps,
+            "levels": list(level_tuple),
+            "holdout": holdout,
+            "origins": origins if holdout else None,
+            "point_forecast": point_kind(spec),
+        },
         created=_dt.datetime.now(_dt.UTC).replace(microsecond=0).isoformat(),
     )
 
 
-def _finite(value: float) -> bool:
-    return isinstance(value, float) and math.isfinite(value)
+def _check_levels(levels: Sequence[float]) -> tuple[float, ...]:
+    try:
+        values = tuple(sorted({float(v) for v in levels}))
+    except (TypeError, ValueError):
+        raise SpecError(
+            f"levels must be numbers in percent, e.g. (80, 95); got {levels!r}."
+        ) from None
+    if not values or any(not 0 < v < 100 for v in values):
+        raise SpecError(f"levels must lie strictly between 0 and 100 (percent); got {levels!r}.")
+    return values
+
+
+def _fixed_params_adapter() -> EstimatorAdapter | None:
+    for key in available_estimators():
+        adapter = get_adapter(key)
+        if adapter.capabilities.fixed_params and adapter.availability() is None:
+            return adapter
+    return None
+
+
+def _forecast_at_reference(
+    y_t: Any, spec: ModelSpec, params: Mapping[str, float], steps: int, levels: tuple[float, ...]
+) -> Forecast | None:
+    """Forecast at the reference optimum through an adapter that filters at given parameters."""
+    adapter = _fixed_params_adapter()
+    if adapter is None:
+        return None
+    fc = adapter.forecast_at(y_t, spec, dict(params), steps, levels)
+    if not fc.ok:
+        return None
+    fc.key = REFERENCE_KEY
+    fc.interval_method = f"{fc.interval_method}; filtered at the reference optimum by {adapter.key}"
+    return fc
+
+
+def _run_holdout(
+    series: PreparedSeries,
+    spec: ModelSpec,
+    keys: list[str],
+    horizon: int,
+    origins: int,
+    levels: tuple[float, ...],
+) -> HoldoutResult:
+    if isinstance(horizon, bool) or not isinstance(horizon, int) or horizon < 1:
+        raise SpecError(f"holdout must be a whole number of steps >= 1, got {horizon!r}.")
+    if isinstance(origins, bool) or not isinstance(origins, int) or origins < 1:
+        raise SpecError(f"origins must be a whole number >= 1, got {origins!r}.")
+    need = spec.minimum_length()
+    train = len(series) - horizon * origins
+    if train < need:
+        raise SeriesError(
+            f"A holdout of {origins} x {horizon} leaves {train} observations to fit on; {spec} "
+            f"needs at least {need}. Hold out fewer observations or use fewer origins."
+        )
+    from . import reference as _reference
+
+    def reference_forecaster(
+        train_t: Any, estimates: Mapping[str, Estimate], steps: int
+    ) -> Forecast | None:
+        starts = {k: dict(e.params) for k, e in estimates.items() if e.ok}
+        fit = _reference.fit_reference(train_t, spec, starts)
+        params = {name: float(fit.params[name]) for name in parameter_names(spec)}
+        return _forecast_at_reference(train_t, spec, params, steps, levels)
+
+    return run_holdout(
+        series.values, spec, keys, horizon, origins, levels, reference_forecaster, REFERENCE_KEY
+    )

@@ -57,6 +57,15 @@ KINDS: dict[str, str] = {
         "A non-zero mean with two or more differences implies a polynomial trend in levels."
     ),
     "different-model": "The estimator fitted terms the specification did not ask for.",
+    "forecast-difference": (
+        "Point forecasts differ from those at the reference optimum beyond tolerance, in "
+        "units of the forecast standard error."
+    ),
+    "interval-difference": (
+        "Prediction intervals are wider or narrower than those at the reference optimum "
+        "beyond tolerance (often a different sigma2 definition)."
+    ),
+    "holdout-failure": "The estimator could not be fitted or forecast at a holdout origin.",
     "reference-fit": "A caveat about the reference fit itself (convergence, standard errors).",
     "engine-count": "How many independent engines agree with the reference optimum.",
 }

@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import hashlib
 import math
+import re
 from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Any
@@ -20,38 +21,40 @@ from .spec import ModelSpec
 
 __all__ = ["PreparedSeries", "period_from_frequency", "prepare_series"]
 
-# Seasonal period implied by a pandas frequency, keyed by the offset's rule-code prefix.
-_PERIOD_BY_PREFIX = {
-    "M": 12,  # month end / month start ("ME", "MS", "M")
-    "Q": 4,
+# Seasonal period implied by a pandas frequency, keyed by the offset's base code (the part
+# before any "-" anchor such as "-DEC" or "-SUN"), old and new pandas spellings both. Case
+# matters: "MS" is month start but "ms" is milliseconds, "min" is minutes.
+_PERIOD_BY_CODE = {
+    **dict.fromkeys(("M", "ME", "MS", "BM", "BME", "BMS", "CBM", "CBME", "CBMS"), 12),
+    **dict.fromkeys(("Q", "QE", "QS", "BQ", "BQE", "BQS"), 4),
     "W": 52,
     "D": 7,
-    "B": 5,
-    "H": 24,
-    "Y": 1,
-    "A": 1,
+    **dict.fromkeys(("B", "C"), 5),
+    **dict.fromkeys(("h", "H"), 24),
+    **dict.fromkeys(("Y", "YE", "YS", "A", "AS", "BY", "BYE", "BYS", "BA", "BAS"), 1),
 }
+_FREQ_RE = re.compile(r"^(?P<n>\d*)(?P<code>[A-Za-z]+)(?:-[A-Za-z]+)?$")
 
 
 def period_from_frequency(freq: str | None) -> int | None:
     """The usual seasonal period for a pandas frequency string, or None when unknown.
 
     Monthly data give 12, quarterly 4, weekly 52, daily 7 (weekly cycle), business-daily 5,
-    hourly 24 and yearly 1.
+    hourly 24 and yearly 1. A multiple such as ``"2ME"`` (every two months) has no
+    conventional period and gives None, as do sub-hourly frequencies. The string is read
+    directly rather than through pandas' parser, so deprecated spellings that a PeriodIndex
+    still reports (``"M"``, ``"Q-DEC"``) raise no warning.
     """
     if not freq:
         return None
-    try:
-        offset = pd.tseries.frequencies.to_offset(freq)
-    except ValueError:
+    if not isinstance(freq, str):
+        freq = getattr(freq, "freqstr", None)
+        if not freq:
+            return None
+    match = _FREQ_RE.match(freq.strip())
+    if not match or match["n"] not in ("", "1"):
         return None
-    code = offset.rule_code.upper()
-    if getattr(offset, "n", 1) != 1:
-        return None  # e.g. every 2 months: no conventional period
-    for prefix, period in _PERIOD_BY_PREFIX.items():
-        if code.startswith(prefix) or (prefix == "M" and code in {"ME", "MS", "BME", "BMS"}):
-            return period
-    return None
+    return _PERIOD_BY_CODE.get(match["code"])
 
 
 @dataclass(frozen=True, eq=False)
@@ -153,7 +156,9 @@ def _as_values(y: Any, name: str) -> tuple[np.ndarray, pd.Index | None, str]:
         raise SeriesError(
             f"The series must be one-dimensional, got shape {raw.shape}; pass one column."
         )
-    if raw.dtype == bool or (raw.dtype == object and any(isinstance(v, bool) for v in raw)):
+    if raw.dtype == bool or (
+        raw.dtype == object and any(isinstance(v, bool | np.bool_) for v in raw)
+    ):
         raise SeriesError("The series holds True/False values; pass numbers.")
     if raw.dtype.kind in "iuf":
         values = raw.astype(float)

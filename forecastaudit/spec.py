@@ -10,9 +10,12 @@ pytest ini file or an audit record without loss.
 from __future__ import annotations
 
 import math
+import numbers
 import re
 from dataclasses import dataclass, field
 from typing import Any
+
+import numpy as np
 
 from .errors import SpecError
 
@@ -28,7 +31,25 @@ _BOXCOX_RE = re.compile(r"^boxcox\(\s*(?P<lam>[-+0-9.eE]+)\s*\)$", re.IGNORECASE
 _EXOG_RE = re.compile(r"^exog\((?P<cols>[^)]*)\)$", re.IGNORECASE)
 
 
+def _whole_number(item: Any) -> int | None:
+    """``item`` as an int when it is a finite whole number (numpy scalars included), else None.
+
+    True/False are not numbers here: ``order=(True, 0, 0)`` is a mistake, not an AR(1).
+    """
+    if isinstance(item, bool | np.bool_):
+        return None
+    if isinstance(item, numbers.Integral):
+        return int(item)
+    if isinstance(item, numbers.Real):
+        value = float(item)
+        if math.isfinite(value) and value == int(value):
+            return int(value)
+    return None
+
+
 def _check_order(value: Any, what: str) -> tuple[int, int, int]:
+    if isinstance(value, str):
+        raise SpecError(f"{what} must be a tuple of three integers, got the text {value!r}.")
     try:
         items = tuple(value)
     except TypeError:
@@ -37,17 +58,18 @@ def _check_order(value: Any, what: str) -> tuple[int, int, int]:
         raise SpecError(f"{what} must have three entries, got {len(items)}: {value!r}.")
     out = []
     for name, item in zip(("first", "second", "third"), items, strict=True):
-        if isinstance(item, bool) or not isinstance(item, int | float) or item != int(item):
+        whole = _whole_number(item)
+        if whole is None:
             raise SpecError(f"The {name} entry of {what} must be a whole number, got {item!r}.")
-        if item < 0:
+        if whole < 0:
             raise SpecError(f"The {name} entry of {what} must not be negative, got {item!r}.")
-        out.append(int(item))
+        out.append(whole)
     return out[0], out[1], out[2]
 
 
 def _normalise_transform(transform: Any) -> str | None:
     """Return None, ``"log"`` or ``"boxcox(<lambda>)"`` for any accepted spelling."""
-    if transform is None or transform == "none":
+    if transform is None or (isinstance(transform, str) and transform.strip().lower() == "none"):
         return None
     lam: float | None = None
     if isinstance(transform, str):
@@ -60,7 +82,12 @@ def _normalise_transform(transform: Any) -> str | None:
                 f"Unknown transform {transform!r}. Use None, 'log', or a Box-Cox transform "
                 "written ('boxcox', lambda) or 'boxcox(0.5)'."
             )
-        lam = float(match["lam"])
+        try:
+            lam = float(match["lam"])
+        except ValueError:
+            raise SpecError(
+                f"The Box-Cox lambda in {transform!r} is not a number; write e.g. 'boxcox(0.5)'."
+            ) from None
     elif isinstance(transform, tuple) and len(transform) == 2 and transform[0] == "boxcox":
         lam = transform[1]
     else:
@@ -68,7 +95,11 @@ def _normalise_transform(transform: Any) -> str | None:
             f"Unknown transform {transform!r}. Use None, 'log', ('boxcox', lambda) or "
             "'boxcox(0.5)'."
         )
-    if isinstance(lam, bool) or not isinstance(lam, int | float) or not math.isfinite(lam):
+    if (
+        isinstance(lam, bool | np.bool_)
+        or not isinstance(lam, numbers.Real)
+        or not math.isfinite(float(lam))
+    ):
         raise SpecError(f"The Box-Cox lambda must be a finite number, got {lam!r}.")
     if lam == 0:
         return "log"  # Box-Cox with lambda 0 is the log transform; one spelling for one model.
@@ -124,14 +155,10 @@ class ModelSpec:
         set_(self, "order", _check_order(self.order, "order (p, d, q)"))
         set_(self, "seasonal", _check_order(self.seasonal, "seasonal (P, D, Q)"))
         if self.period is not None:
-            period = self.period
-            if (
-                isinstance(period, bool)
-                or not isinstance(period, int | float)
-                or period != int(period)
-            ):
-                raise SpecError(f"period must be a whole number, got {period!r}.")
-            set_(self, "period", int(period))
+            period = _whole_number(self.period)
+            if period is None:
+                raise SpecError(f"period must be a whole number, got {self.period!r}.")
+            set_(self, "period", period)
         if any(self.seasonal):
             if self.period is None:
                 raise SpecError(
@@ -145,12 +172,13 @@ class ModelSpec:
                 )
         elif self.period is not None and self.period < 1:
             raise SpecError(f"period must be at least 1, got {self.period}.")
-        if not isinstance(self.mean, bool):
+        if not isinstance(self.mean, bool | np.bool_):
             raise SpecError(f"mean must be True or False, got {self.mean!r}.")
+        set_(self, "mean", bool(self.mean))
         set_(self, "transform", _normalise_transform(self.transform))
         if isinstance(self.exog, str):
             raise SpecError("exog must be a tuple of column names, not a single string.")
-        exog = tuple(self.exog)
+        exog = () if self.exog is None else tuple(self.exog)
         if exog:
             raise SpecError(f"Exogenous regressors {exog} are not supported yet; fit without exog.")
         set_(self, "exog", exog)

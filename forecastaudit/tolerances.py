@@ -37,6 +37,15 @@ REASONS: dict[str, str] = {
         "value before it counts as having stopped short: 0.01 is 0.02 AIC units, a hundredth "
         "of the 2-unit difference that Burnham & Anderson (2002) treat as meaningful."
     ),
+    "forecast_se_fraction": (
+        "Point forecasts agree when they differ by at most this fraction of the forecast "
+        "standard error at the reference optimum, at every step: a tenth of a standard error "
+        "is invisible beside the forecast's own uncertainty (common practice, no source)."
+    ),
+    "interval_width_rtol": (
+        "Relative tolerance on the width of prediction intervals against those at the "
+        "reference optimum: 2% (common practice, no source)."
+    ),
     "root_margin": (
         "A root of an AR or MA polynomial whose modulus is below 1 + root_margin is treated "
         "as on the boundary of the stationary or invertible region (common practice, no "
@@ -64,6 +73,11 @@ class Tolerances:
         Relative tolerance on sigma2. Default 0.01.
     loglike_atol : float
         Allowed shortfall below the best reference log-likelihood. Default 0.01.
+    forecast_se_fraction : float
+        Point forecasts agree within this fraction of the reference forecast standard error.
+        Default 0.1.
+    interval_width_rtol : float
+        Relative tolerance on interval widths. Default 0.02.
     root_margin : float
         Roots with modulus below ``1 + root_margin`` are on the boundary. Default 0.02.
     min_independent_engines : int
@@ -79,6 +93,8 @@ class Tolerances:
     parameter_atol: float = 2e-3
     sigma2_rtol: float = 0.01
     loglike_atol: float = 0.01
+    forecast_se_fraction: float = 0.1
+    interval_width_rtol: float = 0.02
     root_margin: float = 0.02
     min_independent_engines: int = 2
 
