@@ -94,9 +94,35 @@ def build_record(report: AuditReport) -> dict[str, Any]:
                 column: report.parameters[column].to_dict() for column in report.parameters
             },
             "likelihoods": {key: row.to_dict() for key, row in report.likelihoods.iterrows()},
+            "forecasts": {
+                "horizon": report.options.get("horizon"),
+                "levels": report.options.get("levels"),
+                "point_forecast": report.options.get("point_forecast"),
+                "original_scale": {k: fc.to_dict() for k, fc in report.forecasts.items()},
+                "transformed_scale": {
+                    k: fc.to_dict() for k, fc in report.forecasts_transformed.items()
+                },
+                "spread": _frame_records(report.spread),
+            },
+            "residual_tests": _frame_rows(report.residual_tests),
+            "holdout": report.holdout.to_dict() if report.holdout is not None else None,
             "findings": [f.to_dict() for f in report.findings],
         }
     )
+
+
+def _frame_rows(frame: Any) -> dict[str, Any] | None:
+    """A DataFrame as {row label: {column: value}}, or None."""
+    if frame is None:
+        return None
+    return {str(k): row.to_dict() for k, row in frame.iterrows()}
+
+
+def _frame_records(frame: Any) -> list[dict[str, Any]] | None:
+    """A DataFrame as a list of rows with the index as a column, or None."""
+    if frame is None:
+        return None
+    return frame.reset_index().to_dict(orient="records")
 
 
 def _clean(value: Any) -> Any:
