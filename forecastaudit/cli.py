@@ -44,6 +44,15 @@ def _parse_tolerances(items: Sequence[str] | None) -> dict[str, float]:
     return out
 
 
+def _parse_levels(text: str) -> tuple[float, ...]:
+    try:
+        return tuple(float(part) for part in text.split(","))
+    except ValueError:
+        raise ForecastAuditError(
+            f"--levels expects percentages separated by commas (e.g. 80,95), got {text!r}."
+        ) from None
+
+
 def read_series(path: str | Path, column: str | None, date_column: str | None = None) -> pd.Series:
     """Read one column of a CSV or Parquet file as a Series indexed by its date column.
 
@@ -117,7 +126,7 @@ def _cmd_demo(args: argparse.Namespace) -> int:
         "Demo: monthly red-cell units issued by the (fictional) Ashgrove Regional Blood "
         f"Service, {series.index[0]} to {series.index[-1]}; model {DEMO_SPEC}.\n"
     )
-    report = audit(series, DEMO_SPEC, progress=not args.quiet)
+    report = audit(series, DEMO_SPEC, holdout=12, origins=2, progress=not args.quiet)
     return _demo_exit(_finish(report, Path(args.out)))
 
 
@@ -132,6 +141,10 @@ def _cmd_audit(args: argparse.Namespace) -> int:
         estimators=estimators,
         tolerances=_parse_tolerances(args.tolerance),
         period=args.period,
+        horizon=args.horizon,
+        levels=_parse_levels(args.levels),
+        holdout=args.holdout,
+        origins=args.origins,
         progress=not args.quiet,
     )
     return _finish(report, Path(args.out) if args.out else None)
@@ -199,6 +212,19 @@ def build_parser() -> argparse.ArgumentParser:
         action="append",
         metavar="NAME=VALUE",
         help="override a tolerance, e.g. loglike_atol=0.05 (repeatable)",
+    )
+    run.add_argument("--horizon", type=int, help="steps to forecast (default: the period)")
+    run.add_argument(
+        "--levels", default="80,95", help="interval levels in percent (default: %(default)s)"
+    )
+    run.add_argument(
+        "--holdout", type=int, help="hold out this many final observations and score forecasts"
+    )
+    run.add_argument(
+        "--origins",
+        type=int,
+        default=1,
+        help="number of consecutive holdout windows (rolling origin; default: %(default)s)",
     )
     run.add_argument("--out", help="output folder for the record (default: print only)")
     run.add_argument("--quiet", action="store_true", help="no progress bar")
