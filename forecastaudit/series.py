@@ -103,7 +103,7 @@ class PreparedSeries:
             bad = int(np.argmax(self.values <= 0))
             raise SeriesError(
                 f"The {spec.transform} transform needs strictly positive values, but "
-                f"observation {bad} of '{self.name}' is {self.values[bad]!r}. Remove the "
+                f"observation {bad} of '{self.name}' is {float(self.values[bad])!r}. Remove the "
                 "transform from the model, or shift the data deliberately before the audit."
             )
         if lam == 0.0:
