@@ -8,6 +8,7 @@ so a reader never sees half a record.
 
 from __future__ import annotations
 
+import hashlib
 import importlib.metadata
 import json
 import math
@@ -25,7 +26,14 @@ from .errors import RecordError
 if TYPE_CHECKING:
     from .audit import AuditReport
 
-__all__ = ["SCHEMA_VERSION", "build_record", "dumps", "load_record", "write_text_atomic"]
+__all__ = [
+    "SCHEMA_VERSION",
+    "build_record",
+    "dumps",
+    "load_record",
+    "validate_record",
+    "write_text_atomic",
+]
 
 SCHEMA_VERSION = "1.0"
 RECORD_KIND = "forecastaudit-record"
@@ -73,8 +81,8 @@ def provenance(report: AuditReport) -> dict[str, Any]:
 
 
 def build_record(report: AuditReport) -> dict[str, Any]:
-    """The record of an audit as a JSON-ready dictionary."""
-    return _clean(
+    """The record of an audit as a JSON-ready dictionary, sealed and validated."""
+    record = _clean(
         {
             "record": RECORD_KIND,
             "schema_version": SCHEMA_VERSION,
@@ -109,6 +117,46 @@ def build_record(report: AuditReport) -> dict[str, Any]:
             "findings": [f.to_dict() for f in report.findings],
         }
     )
+    record["content_sha256"] = content_digest(record)
+    validate_record(record)
+    return record
+
+
+def content_digest(record: dict[str, Any]) -> str:
+    """SHA-256 of the record's canonical JSON without its ``content_sha256`` field.
+
+    A record whose stored digest differs from this was changed after it was written.
+    """
+    body = {k: v for k, v in record.items() if k != "content_sha256"}
+    text = json.dumps(body, sort_keys=True, separators=(",", ":"), allow_nan=False)
+    return hashlib.sha256(text.encode("utf-8")).hexdigest()
+
+
+def _schema() -> dict[str, Any]:
+    from importlib import resources
+
+    with resources.files("forecastaudit.data").joinpath("record.schema.json").open() as handle:
+        return json.load(handle)
+
+
+def validate_record(record: dict[str, Any]) -> None:
+    """Check a record against the shipped JSON Schema.
+
+    Raises
+    ------
+    RecordError
+        Naming the first place where the record does not follow the schema.
+    """
+    import jsonschema
+
+    validator = jsonschema.Draft202012Validator(_schema())
+    errors = sorted(validator.iter_errors(record), key=lambda e: list(e.absolute_path))
+    if errors:
+        first = errors[0]
+        where = "/".join(str(p) for p in first.absolute_path) or "(top level)"
+        raise RecordError(
+            f"The record does not follow schema {SCHEMA_VERSION} at {where}: {first.message}"
+        )
 
 
 def _frame_rows(frame: Any) -> dict[str, Any] | None:
@@ -192,9 +240,33 @@ def load_record(path: str | os.PathLike[str]) -> dict[str, Any]:
         raise RecordError(f"{path} is not a forecastaudit record (no 'record' marker).")
     version = str(record.get("schema_version", ""))
     if version != SCHEMA_VERSION:
+        newer = _is_newer(version)
         raise RecordError(
-            f"{path} has schema version {version or 'none'}; this forecastaudit reads "
-            f"version {SCHEMA_VERSION}. Use the forecastaudit release that wrote it, or "
-            "re-run the audit."
+            f"{path} has schema version {version or 'none'}"
+            + (" (newer than this release)" if newer else "")
+            + f"; this forecastaudit reads version {SCHEMA_VERSION}. "
+            + (
+                "Upgrade forecastaudit to read it."
+                if newer
+                else "Use the forecastaudit release that wrote it, or re-run the audit."
+            )
+        )
+    try:
+        validate_record(record)
+    except RecordError as exc:
+        raise RecordError(f"{path}: {exc}") from None
+    if record.get("content_sha256") != content_digest(record):
+        raise RecordError(
+            f"{path} was modified after it was written: its content no longer matches its "
+            "content_sha256 seal. Use the original record, or re-run the audit."
         )
     return record
+
+
+def _is_newer(version: str) -> bool:
+    try:
+        return tuple(int(p) for p in version.split(".")) > tuple(
+            int(p) for p in SCHEMA_VERSION.split(".")
+        )
+    except ValueError:
+        return False

@@ -5,6 +5,7 @@ from __future__ import annotations
 import json
 from pathlib import Path
 
+import numpy as np
 import pytest
 
 import forecastaudit as fa
@@ -40,18 +41,58 @@ def test_dumps_is_deterministic_and_strict() -> None:
     assert text.index('"a"') < text.index('"b"')
 
 
-def test_load_record_rejects_foreign_and_future_files(tmp_path: Path) -> None:
+@pytest.fixture(scope="module")
+def small_record(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    rng = np.random.default_rng(5)
+    y = np.cumsum(rng.normal(size=80))
+    report = fa.audit(y, "ARIMA(1,1,0)", estimators=["statsmodels-sarimax"])
+    path = tmp_path_factory.mktemp("record") / "record.json"
+    report.to_json(path)
+    return path
+
+
+def test_record_round_trip(small_record: Path) -> None:
+    record = load_record(small_record)
+    assert record["schema_version"] == SCHEMA_VERSION
+    assert record["spec"]["text"] == "ARIMA(1,1,0)"
+    assert small_record.read_text() == dumps(record)
+
+
+def _rewrite(path: Path, change) -> Path:  # type: ignore[no-untyped-def]
+    record = json.loads(path.read_text())
+    change(record)
+    out = path.with_name("changed.json")
+    out.write_text(json.dumps(record))
+    return out
+
+
+def test_tampered_record_is_rejected(small_record: Path) -> None:
+    def flip(record: dict) -> None:
+        record["verdict"] = "pass" if record["verdict"] == "fail" else "fail"
+
+    with pytest.raises(fa.RecordError, match="modified after it was written"):
+        load_record(_rewrite(small_record, flip))
+
+    def break_schema(record: dict) -> None:
+        record["findings"].append({"kind": "x"})
+
+    with pytest.raises(fa.RecordError, match="does not follow schema"):
+        load_record(_rewrite(small_record, break_schema))
+
+
+def test_future_and_foreign_files_are_rejected(small_record: Path, tmp_path: Path) -> None:
+    def future(record: dict) -> None:
+        record["schema_version"] = "99.0"
+
+    with pytest.raises(fa.RecordError, match=r"newer than this release.*Upgrade"):
+        load_record(_rewrite(small_record, future))
     path = tmp_path / "r.json"
-    write_text_atomic(
-        path, dumps({"record": "forecastaudit-record", "schema_version": SCHEMA_VERSION})
-    )
-    assert load_record(path)["schema_version"] == SCHEMA_VERSION
-    write_text_atomic(path, dumps({"record": "forecastaudit-record", "schema_version": "99.0"}))
-    with pytest.raises(fa.RecordError, match=r"schema version 99\.0"):
-        load_record(path)
     path.write_text("{not json")
     with pytest.raises(fa.RecordError, match="not valid JSON"):
         load_record(path)
     path.write_text('{"hello": 1}')
     with pytest.raises(fa.RecordError, match="not a forecastaudit record"):
+        load_record(path)
+    write_text_atomic(path, dumps({"record": "forecastaudit-record", "schema_version": "1.0"}))
+    with pytest.raises(fa.RecordError, match="does not follow schema"):
         load_record(path)
