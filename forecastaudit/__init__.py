@@ -10,6 +10,7 @@ __version__ = "0.1.0"
 
 from .audit import CAUTION, AuditReport, audit
 from .demo import DEMO_SPEC, load_demo
+from .drift import RecordDrift, compare_records
 from .errors import (
     EstimatorError,
     ForecastAuditError,
@@ -34,6 +35,7 @@ __all__ = [
     "Finding",
     "ForecastAuditError",
     "ModelSpec",
+    "RecordDrift",
     "RecordError",
     "SeriesError",
     "SpecError",
@@ -42,6 +44,7 @@ __all__ = [
     "__version__",
     "audit",
     "available_estimators",
+    "compare_records",
     "load_demo",
     "load_record",
 ]

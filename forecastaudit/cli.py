@@ -150,6 +150,17 @@ def _cmd_audit(args: argparse.Namespace) -> int:
     return _finish(report, Path(args.out) if args.out else None)
 
 
+def _cmd_drift(args: argparse.Namespace) -> int:
+    from .drift import compare_records
+    from .record import dumps, write_text_atomic
+
+    drift = compare_records(args.old, args.new)
+    print(drift)
+    if args.out:
+        print(f"wrote {write_text_atomic(args.out, dumps(drift.to_dict()))}")
+    return EXIT_PASS if drift.passed else EXIT_FINDINGS
+
+
 def _cmd_estimators(args: argparse.Namespace) -> int:
     from .estimators import available_estimators, get_adapter
 
@@ -229,6 +240,17 @@ def build_parser() -> argparse.ArgumentParser:
     run.add_argument("--out", help="output folder for the record (default: print only)")
     run.add_argument("--quiet", action="store_true", help="no progress bar")
     run.set_defaults(func=_cmd_audit)
+
+    drift = sub.add_parser(
+        "drift",
+        help="compare two audit records (e.g. before and after a library upgrade)",
+        epilog=_EPILOG.replace("the audit passed", "nothing drifted beyond tolerance"),
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    drift.add_argument("old", help="the signed-off record (JSON)")
+    drift.add_argument("new", help="the new record (JSON)")
+    drift.add_argument("--out", help="write the drift table as JSON to this file")
+    drift.set_defaults(func=_cmd_drift)
 
     est = sub.add_parser("estimators", help="list the estimators, their versions and engines")
     est.set_defaults(func=_cmd_estimators)

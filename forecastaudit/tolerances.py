@@ -46,6 +46,11 @@ REASONS: dict[str, str] = {
         "Relative tolerance on the width of prediction intervals against those at the "
         "reference optimum: 2% (common practice, no source)."
     ),
+    "accuracy_rtol": (
+        "Between two records, a holdout accuracy measure (MAE, RMSE, MASE, coverage, "
+        "interval score) has drifted when it moves by more than 1% of its value (common "
+        "practice, no source)."
+    ),
     "root_margin": (
         "A root of an AR or MA polynomial whose modulus is below 1 + root_margin is treated "
         "as on the boundary of the stationary or invertible region (common practice, no "
@@ -78,6 +83,8 @@ class Tolerances:
         Default 0.1.
     interval_width_rtol : float
         Relative tolerance on interval widths. Default 0.02.
+    accuracy_rtol : float
+        Relative drift allowed in holdout accuracy measures between records. Default 0.01.
     root_margin : float
         Roots with modulus below ``1 + root_margin`` are on the boundary. Default 0.02.
     min_independent_engines : int
@@ -95,6 +102,7 @@ class Tolerances:
     loglike_atol: float = 0.01
     forecast_se_fraction: float = 0.1
     interval_width_rtol: float = 0.02
+    accuracy_rtol: float = 0.01
     root_margin: float = 0.02
     min_independent_engines: int = 2
 
