@@ -1,0 +1,95 @@
+"""The pytest plugin, tested in temporary projects with pytest's own pytester."""
+
+from __future__ import annotations
+
+import json
+
+import pytest
+
+INI = """
+[pytest]
+audit_estimators = statsmodels-sarimax,statsforecast
+"""
+
+TEST_FILE = """
+import numpy as np
+
+def series():
+    rng = np.random.default_rng(3)
+    x = np.zeros(150)
+    for t in range(1, 150):
+        x[t] = 0.5 * x[t - 1] + rng.normal()
+    return 20 + x + SHIFT
+
+def test_model(model_audit):
+    model_audit(series(), "ARIMA(1,0,0) +mean", name="ar1-model")
+"""
+
+
+def _project(pytester: pytest.Pytester, shift: float = 0.0) -> None:
+    pytester.makeini(INI)
+    pytester.makepyfile(test_model=TEST_FILE.replace("SHIFT", repr(shift)))
+
+
+def test_missing_baseline_fails_and_is_created_only_on_request(pytester: pytest.Pytester) -> None:
+    _project(pytester)
+    result = pytester.runpytest()
+    result.assert_outcomes(failed=1)
+    result.stdout.fnmatch_lines(["*No baseline record*--audit-update-baselines*"])
+    baseline = pytester.path / "audit-baselines" / "ar1-model.json"
+    assert not baseline.exists()
+    result = pytester.runpytest("--audit-update-baselines")
+    result.assert_outcomes(passed=1)
+    assert json.loads(baseline.read_text())["spec"]["text"] == "ARIMA(1,0,0) +mean"
+    result = pytester.runpytest()
+    result.assert_outcomes(passed=1)
+
+
+def test_drifted_baseline_fails_and_regeneration_updates_it(pytester: pytest.Pytester) -> None:
+    _project(pytester)
+    pytester.runpytest("--audit-update-baselines").assert_outcomes(passed=1)
+    baseline = pytester.path / "audit-baselines" / "ar1-model.json"
+    before = json.loads(baseline.read_text())
+    # New data (the level moved by 1.5): the re-fit drifts from the signed-off record.
+    _project(pytester, shift=1.5)
+    result = pytester.runpytest()
+    result.assert_outcomes(failed=1)
+    result.stdout.fnmatch_lines(["*drifted from its baseline*", "*DIFFERENT*"])
+    pytester.runpytest("--audit-update-baselines").assert_outcomes(passed=1)
+    after = json.loads(baseline.read_text())
+    assert after["content_sha256"] != before["content_sha256"]
+    pytester.runpytest().assert_outcomes(passed=1)
+
+
+def test_injected_disagreement_fails_with_findings(pytester: pytest.Pytester) -> None:
+    pytester.makeini(
+        INI.replace("statsmodels-sarimax,statsforecast", "statsmodels-sarimax,shifted")
+    )
+    pytester.makeconftest(
+        """
+from forecastaudit.estimators.base import register_estimator
+from forecastaudit.estimators.statsmodels_sarimax import StatsmodelsSarimax
+
+@register_estimator
+class Shifted(StatsmodelsSarimax):
+    key = "shifted"
+    engine = "test-engine"
+    description = "SARIMAX with its AR coefficient moved by 0.2"
+
+    def _fit(self, y, spec):
+        out = super()._fit(y, spec)
+        out.params = {**out.params, "ar_lag1": out.params["ar_lag1"] + 0.2}
+        return out
+"""
+    )
+    pytester.makepyfile(test_model=TEST_FILE.replace("SHIFT", "0.0"))
+    result = pytester.runpytest_subprocess()
+    result.assert_outcomes(failed=1)
+    result.stdout.fnmatch_lines(["*found problems beyond tolerance*", "*stopped-short*shifted*"])
+
+
+def test_marker_and_options_are_registered(pytester: pytest.Pytester) -> None:
+    result = pytester.runpytest("--markers")
+    result.stdout.fnmatch_lines(["*slow_audit*"])
+    result = pytester.runpytest("--help")
+    result.stdout.fnmatch_lines(["*--audit-baselines*", "*--audit-update-baselines*"])
