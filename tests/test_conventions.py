@@ -403,7 +403,7 @@ def _assert_same(a, b):
         assert a[name] == pytest.approx(b[name], rel=1e-12, abs=1e-12), name
 
 
-@settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@settings(max_examples=100, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(box_jenkins_models())
 def test_box_jenkins_round_trip_through_statsmodels_names(model):
     spec, bj = model
@@ -418,7 +418,7 @@ def test_box_jenkins_round_trip_through_statsmodels_names(model):
         _assert_same(_canonical_to_bj(back), bj)
 
 
-@settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@settings(max_examples=100, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(box_jenkins_models())
 def test_box_jenkins_round_trip_through_statsforecast_names(model):
     spec, bj = model
