@@ -160,15 +160,27 @@ def _as_values(y: Any, name: str) -> tuple[np.ndarray, pd.Index | None, str]:
         raw.dtype == object and any(isinstance(v, bool | np.bool_) for v in raw)
     ):
         raise SeriesError("The series holds True/False values; pass numbers.")
+    if raw.dtype.kind in "mM":
+        raise SeriesError(
+            f"'{name}' holds {'durations' if raw.dtype.kind == 'm' else 'dates'} "
+            f"({raw.dtype}), not numbers; pass the quantity to audit (the dates belong in "
+            "the index)."
+        )
     if raw.dtype.kind in "iuf":
         values = raw.astype(float)
     else:
         values = np.empty(raw.size)
         for i, item in enumerate(raw):
+            # numpy counts timedelta64 as an integer type; a duration is not an observation.
             if isinstance(item, int | float | np.integer | np.floating) and not isinstance(
-                item, bool
+                item, bool | np.timedelta64
             ):
-                values[i] = float(item)
+                try:
+                    values[i] = float(item)
+                except OverflowError:
+                    raise SeriesError(
+                        f"Observation {i} of '{name}' is too large for a float64 number."
+                    ) from None
             elif item is None or item is pd.NA or item is pd.NaT:
                 values[i] = math.nan
             else:
@@ -193,6 +205,12 @@ def _check_finite(values: np.ndarray, name: str) -> None:
 
 
 def _check_index(index: pd.Index, name: str) -> str | None:
+    if index.hasnans:
+        positions = np.flatnonzero(index.isna())
+        raise SeriesError(
+            f"'{name}' has missing timestamps (NaT) at position(s) "
+            f"{', '.join(str(p) for p in positions[:5])}; every observation needs its date."
+        )
     if index.has_duplicates:
         dup = index[index.duplicated()][0]
         raise SeriesError(f"'{name}' has duplicate timestamps (first: {dup}); keep one per period.")

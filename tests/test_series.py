@@ -147,6 +147,21 @@ def test_non_numeric_strings():
         prepare_series(np.array(["1.0", "2.0"]))
 
 
+def test_dates_and_durations_are_not_observations():
+    with pytest.raises(SeriesError, match=r"holds durations \(timedelta64\[ns\]\), not numbers"):
+        prepare_series(pd.Series(pd.to_timedelta([1, 2, 3], unit="D")))
+    with pytest.raises(SeriesError, match=r"holds dates \(datetime64\[ns\]\), not numbers"):
+        prepare_series(pd.Series(pd.date_range("2000-01-01", periods=3)))
+    # numpy counts timedelta64 as an integer type; it must still be refused.
+    with pytest.raises(SeriesError, match=r"is np\.timedelta64.*not a number"):
+        prepare_series(np.array([np.timedelta64(1, "D")], dtype=object))
+
+
+def test_a_number_too_large_for_float64():
+    with pytest.raises(SeriesError, match="Observation 0 of 'y' is too large for a float64"):
+        prepare_series([10**400, 1])
+
+
 def test_booleans():
     for y in ([True, False, True], np.array([True, False]), pd.Series([1.0, True], dtype=object),
               np.array([np.True_, 1.0], dtype=object)):
@@ -184,6 +199,15 @@ def test_duplicate_timestamps():
     index = pd.DatetimeIndex(["2000-01-01", "2000-02-01", "2000-02-01", "2000-03-01"])
     with pytest.raises(SeriesError, match="duplicate timestamps \\(first: 2000-02-01"):
         prepare_series(pd.Series(np.ones(4), index=index))
+
+
+def test_missing_timestamps():
+    index = pd.DatetimeIndex(["2000-01-01", None, "2000-03-01", "2000-04-01"])
+    with pytest.raises(SeriesError, match=r"missing timestamps \(NaT\) at position\(s\) 1;"):
+        prepare_series(pd.Series(np.ones(4), index=index))
+    periods = pd.PeriodIndex(["2000-01", None, "2000-03"], freq="M")
+    with pytest.raises(SeriesError, match=r"missing timestamps \(NaT\)"):
+        prepare_series(pd.Series(np.ones(3), index=periods))
 
 
 def test_unsorted_timestamps():
