@@ -290,11 +290,15 @@ def test_no_constant_is_added_without_a_mean(airline_fits):
         assert not set(airline_fits[key].native_params) & {"intercept", "const", "drift"}
 
 
-def test_statsmodels_arima_records_its_overridden_constant(ar1_mean10):
+def test_default_constants_without_differencing_are_overridden(ar1_mean10):
     # tsa.arima ARIMA adds a constant by default when d + D = 0.
     estimate = get_adapter("statsmodels-arima").fit(ar1_mean10.values, ModelSpec((1, 0, 0)))
     assert estimate.overridden_defaults == {"trend": "c"}
     assert "const" not in estimate.native_params
+    # statsforecast's include_mean defaults to True, which applies when d + D = 0.
+    sf = get_adapter("statsforecast").fit(ar1_mean10.values, ModelSpec((1, 0, 0)))
+    assert sf.overridden_defaults == {"include_mean": True}
+    assert sf.options["include_mean"] is False and list(sf.native_params) == ["ar1"]
 
 
 # ---------------------------------------------------------------------- sigma2 and criteria
