@@ -325,6 +325,12 @@ def audit(
     spec = _resolve_spec(spec, series.period)
     check_length(series, spec)
     keys = _resolve_estimators(estimators)
+    steps = (
+        _check_steps(horizon, "horizon") if horizon is not None else (spec.m if spec.m > 1 else 12)
+    )
+    level_tuple = _check_levels(levels)
+    if holdout is not None:
+        _check_holdout(series, spec, holdout, origins)
     y_t = series.transformed(spec)
     n_w = len(series) - spec.lost_to_differencing
 
@@ -341,7 +347,7 @@ def audit(
     ok = {k: e for k, e in estimates.items() if e.ok}
     starts = {k: dict(e.params) for k, e in ok.items()}
     fit = _reference.fit_reference(y_t, spec, starts)
-    reference = _reference_estimate(y_t, spec, fit, n_w)
+    reference = _reference_estimate(spec, fit, n_w)
     standard_errors = {k: float(v) for k, v in fit.standard_errors.items()}
     scored = {k: _reference.evaluate(y_t, spec, e.params) for k, e in ok.items()}
     scored[REFERENCE_KEY] = _reference.evaluate(y_t, spec, reference.params)
@@ -358,8 +364,6 @@ def audit(
     all_estimates = {**estimates, REFERENCE_KEY: reference}
 
     # Forecasts from the full series, with each library's own intervals.
-    steps = horizon or (spec.m if spec.m > 1 else 12)
-    level_tuple = _check_levels(levels)
     transformed: dict[str, Forecast] = {}
     for key, e in estimates.items():
         if e.ok:
@@ -435,6 +439,24 @@ def _check_levels(levels: Sequence[float]) -> tuple[float, ...]:
     return values
 
 
+def _check_steps(value: Any, what: str) -> int:
+    if isinstance(value, bool) or not isinstance(value, int) or value < 1:
+        raise SpecError(f"{what} must be a whole number of steps >= 1, got {value!r}.")
+    return value
+
+
+def _check_holdout(series: PreparedSeries, spec: ModelSpec, holdout: Any, origins: Any) -> None:
+    _check_steps(holdout, "holdout")
+    _check_steps(origins, "origins")
+    need = spec.minimum_length()
+    train = len(series) - holdout * origins
+    if train < need:
+        raise SeriesError(
+            f"A holdout of {origins} x {holdout} leaves {train} observations to fit on; {spec} "
+            f"needs at least {need}. Hold out fewer observations or use fewer origins."
+        )
+
+
 def _fixed_params_adapter() -> EstimatorAdapter | None:
     for key in available_estimators():
         adapter = get_adapter(key)
@@ -466,17 +488,6 @@ def _run_holdout(
     origins: int,
     levels: tuple[float, ...],
 ) -> HoldoutResult:
-    if isinstance(horizon, bool) or not isinstance(horizon, int) or horizon < 1:
-        raise SpecError(f"holdout must be a whole number of steps >= 1, got {horizon!r}.")
-    if isinstance(origins, bool) or not isinstance(origins, int) or origins < 1:
-        raise SpecError(f"origins must be a whole number >= 1, got {origins!r}.")
-    need = spec.minimum_length()
-    train = len(series) - horizon * origins
-    if train < need:
-        raise SeriesError(
-            f"A holdout of {origins} x {horizon} leaves {train} observations to fit on; {spec} "
-            f"needs at least {need}. Hold out fewer observations or use fewer origins."
-        )
     from . import reference as _reference
 
     def reference_forecaster(
