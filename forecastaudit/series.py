@@ -184,12 +184,44 @@ def _as_values(y: Any, name: str) -> tuple[np.ndarray, pd.Index | None, str]:
             elif item is None or item is pd.NA or item is pd.NaT:
                 values[i] = math.nan
             else:
-                raise SeriesError(
-                    f"Observation {i} of '{name}' is {item!r} ({type(item).__name__}), not a "
-                    "number. Convert the column to numbers first (e.g. pandas.to_numeric) and "
-                    "decide what to do with entries that do not convert."
-                )
+                raise _not_a_number(raw, i, name)
     return values, index, name
+
+
+def _parses_as_number(item: Any) -> bool:
+    try:
+        float(item)
+    except (TypeError, ValueError):
+        return False
+    return True
+
+
+def _not_a_number(raw: np.ndarray, first: int, name: str) -> SeriesError:
+    """The error for an entry that is not a number, naming the entry that will not convert.
+
+    Numbers stored as text ('12') are refused too (estimators differ in whether they cast
+    them), but the message then points at the first entry that is not a number at all.
+    """
+    item = raw[first]
+    if isinstance(item, str) and _parses_as_number(item):
+        for j in range(first, raw.size):
+            other = raw[j]
+            if isinstance(other, str) and not _parses_as_number(other):
+                return SeriesError(
+                    f"Observation {j} of '{name}' is {other!r} (str), not a number, and the "
+                    f"column holds numbers as text (observation {first} is {item!r}). Convert "
+                    "it to numbers first (e.g. pandas.to_numeric) and decide what to do with "
+                    "entries that do not convert."
+                )
+        return SeriesError(
+            f"'{name}' holds numbers as text (observation {first} is {item!r}); convert the "
+            "column to numbers first (e.g. pandas.to_numeric)."
+        )
+    return SeriesError(
+        f"Observation {first} of '{name}' is {item!r} ({type(item).__name__}), not a "
+        "number. Convert the column to numbers first (e.g. pandas.to_numeric) and "
+        "decide what to do with entries that do not convert."
+    )
 
 
 def _check_finite(values: np.ndarray, name: str) -> None:

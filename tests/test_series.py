@@ -141,10 +141,15 @@ def test_missing_entries_of_every_kind():
 def test_non_numeric_strings():
     with pytest.raises(SeriesError, match=r"Observation 2 of 'y' is 'n/a' \(str\), not a number"):
         prepare_series([1.0, 2.0, "n/a", 4.0])
-    with pytest.raises(SeriesError, match=r"Observation 0 of 'sales' is '12'"):
+    with pytest.raises(SeriesError, match=r"'sales' holds numbers as text \(observation 0 is "
+                       r"'12'\); convert the column to numbers first"):
         prepare_series(pd.Series(["12", "13"], name="sales"))
-    with pytest.raises(SeriesError, match="not a number"):
+    with pytest.raises(SeriesError, match="holds numbers as text"):
         prepare_series(np.array(["1.0", "2.0"]))
+    # Text numbers with one entry that is not a number: the message names that entry.
+    with pytest.raises(SeriesError, match=r"Observation 2 of 'units' is 'x' \(str\), not a "
+                       r"number, and the column holds numbers as text \(observation 0 is '1'\)"):
+        prepare_series(pd.Series(["1", "2", "x", "4"], name="units"))
 
 
 def test_dates_and_durations_are_not_observations():
