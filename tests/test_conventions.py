@@ -201,7 +201,8 @@ def test_difference_matches_numpy_and_pandas(log_airline):
 
 def test_information_criteria_hand_example():
     # l = -100, k = 3, n = 50: AIC = 200 + 6 = 206; AICc = 206 + 2*3*4/46; BIC = 200 + 3 ln 50
-    # (formulas: Akaike 1974; Hurvich & Tsai 1989, Biometrika 76; Schwarz 1978).
+    # (formulas: Akaike 1974, IEEE Trans. Automatic Control 19; Hurvich & Tsai 1989,
+    # Biometrika 76; Schwarz 1978, Annals of Statistics 6).
     ic = information_criteria(-100.0, 3, 50)
     assert ic["aic"] == pytest.approx(206.0, rel=1e-15)
     assert ic["aicc"] == pytest.approx(206.0 + 24.0 / 46.0, rel=1e-15)
