@@ -132,12 +132,14 @@ def _cmd_demo(args: argparse.Namespace) -> int:
 
 def _cmd_audit(args: argparse.Namespace) -> int:
     from .audit import audit
+    from .spec import ModelSpec
 
+    spec = ModelSpec.parse(args.model)  # a bad model text is reported before the data is read
     series = read_series(args.data, args.column, args.date_column)
     estimators = args.estimators.split(",") if args.estimators else None
     report = audit(
         series,
-        args.model,
+        spec,
         estimators=estimators,
         tolerances=_parse_tolerances(args.tolerance),
         period=args.period,

@@ -189,9 +189,10 @@ def information_criteria(loglike: float, k: int, n: int) -> dict[str, float]:
 
     ``k`` counts every free coefficient plus sigma2 and ``n`` is the length of the
     differenced series: AIC = -2l + 2k, AICc = AIC + 2k(k+1)/(n-k-1), BIC = -2l + k ln n.
-    AICc is infinite when ``n - k - 1 <= 0``.
+    AICc is infinite when ``n - k - 1 <= 0``; all three are NaN when ``n <= 0`` or the
+    log-likelihood is not finite.
     """
-    if not math.isfinite(loglike):
+    if not math.isfinite(loglike) or n <= 0:
         return {"aic": math.nan, "aicc": math.nan, "bic": math.nan}
     aic = -2.0 * loglike + 2.0 * k
     denominator = n - k - 1

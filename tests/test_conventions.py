@@ -228,12 +228,6 @@ def test_information_criteria_edge_cases():
     assert all(math.isnan(v) for v in information_criteria(-math.inf, 3, 50).values())
 
 
-@pytest.mark.xfail(
-    reason="conventions.information_criteria calls math.log(n) for n <= 0 and raises "
-    "ValueError (math domain error); a series no longer than d + mD then crashes "
-    "EstimatorAdapter.fit instead of returning an estimate",
-    strict=True,
-)
 def test_information_criteria_with_no_observations_do_not_raise():
     ic = information_criteria(0.0, 3, 0)
     assert math.isnan(ic["bic"]) and not math.isfinite(ic["aicc"])

@@ -426,12 +426,6 @@ def test_warnings_are_captured_and_not_emitted():
     )
 
 
-@pytest.mark.xfail(
-    reason="EstimatorAdapter.fit raises ValueError (math domain error) from "
-    "conventions.information_criteria when len(y) <= d + m D: statsmodels returns llf 0.0 "
-    "and the canonical BIC takes log(n_w) with n_w <= 0",
-    strict=True,
-)
 def test_series_no_longer_than_the_differencing_does_not_crash(log_airline):
     estimate = get_adapter("statsmodels-sarimax").fit(log_airline[:13], AIRLINE)
     assert estimate.status in {"ok", "failed"}

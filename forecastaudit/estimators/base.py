@@ -530,6 +530,15 @@ class EstimatorAdapter(ABC):
         unsupported = self.unsupported_reason(spec)
         if unsupported is not None:
             return Estimate(**base, status="unsupported", reason=unsupported)
+        if len(y) <= spec.lost_to_differencing:
+            return Estimate(
+                **base,
+                status="failed",
+                reason=(
+                    f"the series ({len(y)} observations) is no longer than the "
+                    f"{spec.lost_to_differencing} used up by differencing; nothing was fitted"
+                ),
+            )
 
         call = _run_captured(self._fit, np.array(y, dtype=float, copy=True), spec)
         result, captured, printed, seconds = call.result, call.warnings, call.output, call.seconds

@@ -1,0 +1,791 @@
+"""What the reports say, independent of the format they say it in.
+
+The HTML and Markdown renderers both read the same summary, finding groups and tables from
+here, so the two formats cannot drift apart. A table is plain data (:class:`Table`): cells
+hold display text that is *not* escaped; each renderer escapes for its own format.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Iterable, Mapping, Sequence
+from dataclasses import dataclass, field
+from typing import TYPE_CHECKING, Any
+
+import pandas as pd
+
+from ..findings import KINDS, Finding
+
+if TYPE_CHECKING:
+    from ..audit import AuditReport
+
+__all__ = [
+    "FLAG_MARKS",
+    "SEVERITY_LABELS",
+    "Cell",
+    "FindingGroup",
+    "Row",
+    "Summary",
+    "Table",
+    "estimator_table",
+    "finding_groups",
+    "forecast_table",
+    "format_number",
+    "holdout_tables",
+    "likelihood_table",
+    "package_table",
+    "parameter_table",
+    "provenance_table",
+    "residual_table",
+    "summary",
+    "tolerance_table",
+]
+
+REFERENCE_KEY = "reference"
+
+# Severity words and symbols: the verdict and severities never rely on colour alone.
+SEVERITY_LABELS: dict[str, dict[str, str]] = {
+    "fail": {"word": "FAIL", "symbol": "\u2717", "heading": "Failures"},
+    "warn": {"word": "WARN", "symbol": "!", "heading": "Warnings"},
+    "info": {"word": "INFO", "symbol": "i", "heading": "For information"},
+}
+VERDICT_LABELS: dict[str, dict[str, str]] = {
+    "pass": {"word": "PASS", "symbol": "\u2713"},
+    "fail": {"word": "FAIL", "symbol": "\u2717"},
+}
+
+# Markers appended to flagged cells, with the note explaining them under the table.
+FLAG_MARKS: dict[str, tuple[str, str]] = {
+    "beyond": ("\u2020", "differs from the reference optimum by more than the tolerance"),
+    "changed": ("\u2021", "changed from the default"),
+    "low-p": ("\u00a7", "p-value below 0.05: autocorrelation may remain in the residuals"),
+}
+
+MISSING = "\u2013"  # en dash for a value that does not exist
+
+
+# ---------------------------------------------------------------------- value formatting
+def format_number(value: Any, kind: str = "general") -> str:
+    """Display text of one number.
+
+    Parameters
+    ----------
+    value : number, bool or None
+        The value; None and NaN become an en dash.
+    kind : {"general", "param", "loglike", "criterion", "seconds", "pvalue", "count",
+            "percent", "level", "fixed<d>"}
+        What the number is, which fixes its precision: parameters to 5 significant digits,
+        log-likelihoods and criteria to 4 decimals (so definition differences of 0.01 show),
+        seconds to 2 decimals, p-values to 3 decimals, counts as whole numbers; ``fixed3``
+        is three decimals (see :func:`column_kind`).
+    """
+    if value is None:
+        return MISSING
+    if isinstance(value, bool):
+        return "yes" if value else "no"
+    try:
+        number = float(value)
+    except (TypeError, ValueError):
+        return str(value)
+    if not math.isfinite(number):
+        return MISSING
+    if number == 0.0:
+        number = 0.0  # no "-0"
+    if kind == "param":
+        return f"{number:.5g}"
+    if kind in ("loglike", "criterion"):
+        return f"{number:.4f}"
+    if kind == "seconds":
+        return f"{number:.2f}"
+    if kind == "pvalue":
+        return "<0.001" if number < 0.001 else f"{number:.3f}"
+    if kind == "count":
+        return f"{number:.0f}"
+    if kind == "percent":
+        return f"{100.0 * number:.2f}%"
+    if kind == "level":
+        return f"{number:g}"
+    if kind.startswith("fixed"):
+        return f"{number:.{int(kind[len('fixed') :])}f}"
+    return f"{number:.6g}"
+
+
+def column_kind(values: Iterable[Any], significant: int = 5) -> str:
+    """A ``fixed<d>`` kind giving a whole column the same decimals.
+
+    ``d`` is chosen so the largest magnitude in the column shows ``significant`` digits
+    (at most 6 decimals), so numbers line up and compare by eye down the column.
+    """
+    finite = [abs(float(v)) for v in values if _finite(v)]
+    largest = max(finite, default=0.0)
+    if largest == 0.0:
+        return "fixed0"
+    decimals = significant - 1 - math.floor(math.log10(largest))
+    return f"fixed{min(6, max(0, decimals))}"
+
+
+def _plain_text(value: Any) -> str:
+    """A user-supplied value as one line of text (newlines would break tables)."""
+    return " ".join(str(value).split())
+
+
+# ---------------------------------------------------------------------- tables as data
+@dataclass(frozen=True)
+class Cell:
+    """One table cell: display text (unescaped), whether it is a number, an optional flag."""
+
+    text: str
+    numeric: bool = False
+    flag: str | None = None
+
+    @property
+    def mark(self) -> str:
+        """The marker symbol of the flag, or an empty string."""
+        return FLAG_MARKS[self.flag][0] if self.flag else ""
+
+
+@dataclass(frozen=True)
+class Row:
+    """A table row: a header cell and data cells, or a group heading when ``group`` is set."""
+
+    header: str
+    cells: tuple[Cell, ...] = ()
+    group: bool = False
+
+
+@dataclass(frozen=True)
+class Table:
+    """A table ready for any renderer.
+
+    Attributes
+    ----------
+    id : str
+        Stable identifier (HTML id, test hook).
+    caption : str
+        What the table shows, in one line.
+    corner : str
+        Heading of the first (row header) column.
+    columns : tuple of str
+        Headings of the data columns.
+    rows : tuple of Row
+    notes : tuple of str
+        Sentences printed under the table; flag markers in use are explained automatically.
+    """
+
+    id: str
+    caption: str
+    corner: str
+    columns: tuple[str, ...]
+    rows: tuple[Row, ...]
+    notes: tuple[str, ...] = ()
+
+    @property
+    def numeric_columns(self) -> tuple[bool, ...]:
+        """Per data column, whether every non-empty cell in it is a number."""
+        flags = []
+        for i in range(len(self.columns)):
+            cells = [r.cells[i] for r in self.rows if not r.group and i < len(r.cells)]
+            flags.append(bool(cells) and all(c.numeric or c.text == MISSING for c in cells))
+        return tuple(flags)
+
+    @property
+    def all_notes(self) -> tuple[str, ...]:
+        """The notes, followed by an explanation of each flag marker used in the table."""
+        used = {c.flag for r in self.rows for c in r.cells if c.flag}
+        legends = tuple(f"{FLAG_MARKS[f][0]} {FLAG_MARKS[f][1]}." for f in FLAG_MARKS if f in used)
+        return self.notes + legends
+
+
+def _num(value: Any, kind: str = "general", flag: str | None = None) -> Cell:
+    return Cell(format_number(value, kind), numeric=True, flag=flag)
+
+
+def _text(value: Any, flag: str | None = None) -> Cell:
+    if value is None or (isinstance(value, float) and not math.isfinite(value)):
+        return Cell(MISSING)
+    return Cell(_plain_text(value), flag=flag)
+
+
+def _finite(value: Any) -> bool:
+    try:
+        return value is not None and math.isfinite(float(value))
+    except (TypeError, ValueError):
+        return False
+
+
+# ---------------------------------------------------------------------- summary
+@dataclass(frozen=True)
+class Summary:
+    """The verdict block: everything a reviewer reads first."""
+
+    verdict: str
+    verdict_word: str
+    verdict_symbol: str
+    spec: str
+    series_name: str
+    n: int
+    first: str
+    last: str
+    has_time_index: bool
+    frequency: str | None
+    period: int | None
+    counts: dict[str, int]
+    engines_agreeing: tuple[str, ...]
+    engines_fitted: tuple[str, ...]
+    engines_required: int
+    estimators_ok: int
+    estimators_run: int
+    created: str
+
+    @property
+    def date_range(self) -> str:
+        """First to last label, or the positions when there is no time index."""
+        if self.has_time_index:
+            return f"{self.first} to {self.last}"
+        return f"no time index (positions {self.first} to {self.last})"
+
+    @property
+    def engines_sentence(self) -> str:
+        """How many independent engines agree with the reference optimum, in words."""
+        agreeing = len(self.engines_agreeing)
+        text = (
+            f"{agreeing} of {len(self.engines_fitted)} independent engine"
+            f"{'' if len(self.engines_fitted) == 1 else 's'} agree with the reference "
+            f"optimum (required: {self.engines_required})"
+        )
+        return text
+
+    @property
+    def counts_sentence(self) -> str:
+        """Counts of findings by severity, in words."""
+        return ", ".join(
+            f"{self.counts[s]} {SEVERITY_LABELS[s]['word'].lower()}"
+            for s in ("fail", "warn", "info")
+        )
+
+
+def summary(report: AuditReport) -> Summary:
+    """The verdict block of a report."""
+    labels = report.series.labels()
+    counts = {s: len(report.findings_of(s)) for s in ("fail", "warn", "info")}
+    engine_values: Mapping[str, Any] = {}
+    for f in report.findings:
+        if f.kind == "engine-count":
+            engine_values = f.values
+            break
+    run = [k for k in report.estimates if k != REFERENCE_KEY]
+    return Summary(
+        verdict=report.verdict,
+        verdict_word=VERDICT_LABELS[report.verdict]["word"],
+        verdict_symbol=VERDICT_LABELS[report.verdict]["symbol"],
+        spec=str(report.spec),
+        series_name=_plain_text(report.series.name),
+        n=len(report.series),
+        first=labels[0] if labels else "",
+        last=labels[-1] if labels else "",
+        has_time_index=report.series.index is not None,
+        frequency=report.series.frequency,
+        period=report.series.period,
+        counts=counts,
+        engines_agreeing=tuple(engine_values.get("agreeing", report.independent_engines)),
+        engines_fitted=tuple(engine_values.get("fitted", [])),
+        engines_required=int(
+            engine_values.get("required", report.tolerances.min_independent_engines)
+        ),
+        estimators_ok=sum(report.estimates[k].ok for k in run),
+        estimators_run=len(run),
+        created=report.created,
+    )
+
+
+# ---------------------------------------------------------------------- findings
+@dataclass(frozen=True)
+class FindingItem:
+    """One finding with what the report prints beside it."""
+
+    severity: str
+    word: str
+    symbol: str
+    kind: str
+    explanation: str
+    estimator: str
+    quantity: str | None
+    message: str
+
+
+@dataclass(frozen=True)
+class FindingGroup:
+    """The findings of one severity."""
+
+    severity: str
+    heading: str
+    word: str
+    symbol: str
+    items: tuple[FindingItem, ...] = field(default_factory=tuple)
+
+
+def _item(f: Finding) -> FindingItem:
+    label = SEVERITY_LABELS[f.severity]
+    return FindingItem(
+        severity=f.severity,
+        word=label["word"],
+        symbol=label["symbol"],
+        kind=f.kind,
+        explanation=KINDS.get(f.kind, ""),
+        estimator=_plain_text(f.estimator) if f.estimator else "the audit as a whole",
+        quantity=_plain_text(f.quantity) if f.quantity else None,
+        message=str(f.message),
+    )
+
+
+def finding_groups(report: AuditReport, limit: int | None = None) -> list[FindingGroup]:
+    """Findings grouped by severity, most severe first; groups without findings left out.
+
+    Parameters
+    ----------
+    limit : int, optional
+        Keep at most this many findings in all, the most severe first (for the compact view).
+    """
+    groups = []
+    left = math.inf if limit is None else limit
+    for severity in ("fail", "warn", "info"):
+        found = report.findings_of(severity)
+        if not found or left <= 0:
+            continue
+        kept = found[: int(min(left, len(found)))]
+        left -= len(kept)
+        label = SEVERITY_LABELS[severity]
+        groups.append(
+            FindingGroup(
+                severity=severity,
+                heading=label["heading"],
+                word=label["word"],
+                symbol=label["symbol"],
+                items=tuple(_item(f) for f in kept),
+            )
+        )
+    return groups
+
+
+# ---------------------------------------------------------------------- the tables
+def parameter_table(report: AuditReport) -> Table:
+    """Canonical parameters per estimator, the reference standard error and the tolerance.
+
+    A value is flagged when it differs from the reference optimum by more than the stated
+    tolerance (coefficients: in units of the reference standard error, with an absolute
+    floor; sigma2: relative).
+    """
+    frame = report.parameters
+    keys = [c for c in frame.columns if c != "reference_se"]
+    has_ref = REFERENCE_KEY in keys
+    rows = []
+    for name in frame.index:
+        se = frame.at[name, "reference_se"] if "reference_se" in frame.columns else math.nan
+        ref = frame.at[name, REFERENCE_KEY] if has_ref else math.nan
+        if name == "sigma2":
+            tol = report.tolerances.sigma2_rtol * abs(ref) if _finite(ref) else math.nan
+            tol_text = f"{100 * report.tolerances.sigma2_rtol:g}% relative"
+        else:
+            tol = report.tolerances.parameter_tolerance(se if _finite(se) else None)
+            tol_text = format_number(tol, "param")
+        cells = []
+        for key in keys:
+            value = frame.at[name, key]
+            beyond = (
+                key != REFERENCE_KEY
+                and _finite(value)
+                and _finite(ref)
+                and _finite(tol)
+                and abs(value - ref) > tol
+            )
+            cells.append(_num(value, "param", "beyond" if beyond else None))
+        cells.append(_num(se, "param"))
+        cells.append(Cell(tol_text, numeric=name != "sigma2"))
+        rows.append(Row(str(name), tuple(cells)))
+    notes = (
+        "Canonical convention: AR terms with a minus sign, MA terms with a plus sign; mu is "
+        "the mean of the differenced series; sigma2 is the maximum-likelihood variance.",
+    )
+    return Table(
+        id="parameters",
+        caption="Parameter estimates in the canonical convention",
+        corner="parameter",
+        columns=(*(_plain_text(k) for k in keys), "reference SE", "tolerance"),
+        rows=tuple(rows),
+        notes=notes,
+    )
+
+
+_LIKELIHOOD_ROWS: tuple[tuple[str, tuple[tuple[str, str, str], ...]], ...] = (
+    ("", (("status", "status", "text"),)),
+    (
+        "Log-likelihood",
+        (
+            ("loglike_native", "as reported by the estimator", "loglike"),
+            ("loglike_reference", "reference, at the estimate's sigma2", "loglike"),
+            ("profiled_reference", "reference, sigma2 profiled out", "loglike"),
+            ("gap_to_best", "gap to the best (profiled)", "loglike"),
+        ),
+    ),
+    (
+        "Observations and parameters counted",
+        (
+            ("n_native", "n as counted by the estimator", "count"),
+            ("k_native", "k as counted by the estimator", "count"),
+            ("n", "n (canonical: after differencing)", "count"),
+            ("k", "k (canonical: coefficients + sigma2)", "count"),
+        ),
+    ),
+    (
+        "Information criteria",
+        (
+            ("aic_native", "AIC as reported", "criterion"),
+            ("aic", "AIC canonical", "criterion"),
+            ("aicc_native", "AICc as reported", "criterion"),
+            ("aicc", "AICc canonical", "criterion"),
+            ("bic_native", "BIC as reported", "criterion"),
+            ("bic", "BIC canonical", "criterion"),
+        ),
+    ),
+    (
+        "Innovation variance",
+        (
+            ("sigma2_reported", "sigma2 as reported", "param"),
+            ("sigma2_ml", "sigma2 maximum likelihood", "param"),
+        ),
+    ),
+)
+
+
+def likelihood_table(report: AuditReport) -> Table:
+    """Log-likelihoods, counts, criteria and sigma2 per estimator, native beside canonical.
+
+    Quantities are rows and estimators columns, like the parameter table, so one
+    estimator's numbers read down a column. A gap to the best log-likelihood above the
+    tolerance is flagged.
+    """
+    frame = report.likelihoods
+    keys = list(frame.index)
+    rows: list[Row] = []
+    for group, items in _LIKELIHOOD_ROWS:
+        if group:
+            rows.append(Row(group, group=True))
+        for column, label, kind in items:
+            if column not in frame.columns:
+                continue
+            cells = []
+            for key in keys:
+                value = frame.at[key, column]
+                if kind == "text":
+                    cells.append(_text(value))
+                    continue
+                flag = None
+                if column == "gap_to_best" and _finite(value):
+                    flag = "beyond" if value > report.tolerances.loglike_atol else None
+                cells.append(_num(value, kind, flag))
+            rows.append(Row(label, tuple(cells)))
+    notes = (
+        "Reported values use each estimator's own definitions; canonical values use the "
+        "reference likelihood (exact Gaussian likelihood of the differenced series, 2*pi "
+        "constant included) with n the observations after differencing and k every free "
+        "coefficient plus sigma2.",
+        f"A gap to the best above {format_number(report.tolerances.loglike_atol)} "
+        "log-likelihood units means the optimiser stopped before the optimum.",
+    )
+    return Table(
+        id="likelihoods",
+        caption="Log-likelihoods and information criteria, as reported and canonical",
+        corner="quantity",
+        columns=tuple(_plain_text(k) for k in keys),
+        rows=tuple(rows),
+        notes=notes,
+    )
+
+
+def estimator_table(report: AuditReport) -> Table:
+    """Per estimator: status, package and version, engine, convergence, time, warnings."""
+    rows = []
+    for key, e in report.estimates.items():
+        note = e.reason or (f"fitted {e.fitted_model}" if e.fitted_model else "")
+        rows.append(
+            Row(
+                _plain_text(key),
+                (
+                    _text(e.status),
+                    _text(e.package),
+                    _text(e.version or "not installed"),
+                    _text(e.engine),
+                    _text(format_number(e.converged) if e.converged is not None else "not said"),
+                    _num(e.seconds, "seconds"),
+                    _num(len(e.warnings), "count"),
+                    _text(note) if note else Cell(MISSING),
+                ),
+            )
+        )
+    return Table(
+        id="estimators",
+        caption="Estimators: what ran, and how",
+        corner="estimator",
+        columns=(
+            "status",
+            "package",
+            "version",
+            "engine",
+            "converged",
+            "seconds",
+            "warnings",
+            "note",
+        ),
+        rows=tuple(rows),
+        notes=(
+            "Estimators that share an engine are wrappers of one implementation and count once "
+            "as independent evidence. Every warning is kept in the audit record.",
+        ),
+    )
+
+
+def tolerance_table(report: AuditReport) -> Table:
+    """Each tolerance with its value, its default and the reason for the default."""
+    rows = []
+    for name, item in report.tolerances.describe().items():
+        changed = item["value"] != item["default"]
+        rows.append(
+            Row(
+                name,
+                (
+                    _num(item["value"], "general", "changed" if changed else None),
+                    _num(item["default"], "general"),
+                    _text(item["reason"]),
+                ),
+            )
+        )
+    return Table(
+        id="tolerances",
+        caption="Tolerances the verdict was reached under",
+        corner="tolerance",
+        columns=("value", "default", "reason for the default"),
+        rows=tuple(rows),
+    )
+
+
+def provenance_table(report: AuditReport, provenance: Mapping[str, Any]) -> Table:
+    """Versions, platform and the data fingerprint, one fact per row."""
+    data = provenance.get("data", {})
+    facts = [
+        ("audit finished (UTC)", report.created or MISSING),
+        ("forecastaudit", provenance.get("forecastaudit")),
+        ("Python", f"{provenance.get('python')} ({provenance.get('implementation')})"),
+        ("platform", provenance.get("platform")),
+        ("machine", provenance.get("machine")),
+        ("series", data.get("name")),
+        ("observations", data.get("n")),
+        ("first label", data.get("first")),
+        ("last label", data.get("last")),
+        ("frequency", data.get("frequency") or "none"),
+        ("period", data.get("period") or "none"),
+        ("data fingerprint (SHA-256)", data.get("fingerprint_sha256")),
+    ]
+    return Table(
+        id="provenance",
+        caption="Provenance: what is needed to reproduce this audit",
+        corner="item",
+        columns=("value",),
+        rows=tuple(Row(label, (_text(value),)) for label, value in facts),
+    )
+
+
+def package_table(provenance: Mapping[str, Any]) -> Table:
+    """Installed versions of the numerical packages, whether or not they took part."""
+    packages = provenance.get("packages", {})
+    return Table(
+        id="packages",
+        caption="Package versions",
+        corner="package",
+        columns=("version",),
+        rows=tuple(
+            Row(_plain_text(name), (_text(version or "not installed"),))
+            for name, version in packages.items()
+        ),
+    )
+
+
+def frame_table(
+    frame: pd.DataFrame,
+    *,
+    id: str,
+    caption: str,
+    corner: str,
+    columns: Sequence[tuple[str, str, str]],
+    notes: Iterable[str] = (),
+    flag: Callable[[str, Any], str | None] | None = None,
+    row_label: Callable[[Any], str] = str,
+) -> Table:
+    """A table from a DataFrame: rows are its index, ``columns`` are (name, heading, kind).
+
+    Columns missing from the frame are left out, so a table keeps working when a later
+    release adds or drops a column. ``flag(column, value)`` may return a flag name.
+    """
+    present = [
+        (c, h, column_kind(frame[c]) if k == "column" else k)
+        for c, h, k in columns
+        if c in frame.columns
+    ]
+    rows = []
+    for label, record in frame.iterrows():
+        cells = []
+        for column, _heading, kind in present:
+            value = record[column]
+            mark = flag(column, value) if flag is not None else None
+            cells.append(_text(value, mark) if kind == "text" else _num(value, kind, mark))
+        rows.append(Row(_plain_text(row_label(label)), tuple(cells)))
+    return Table(
+        id=id,
+        caption=caption,
+        corner=corner,
+        columns=tuple(h for _c, h, _k in present),
+        rows=tuple(rows),
+        notes=tuple(notes),
+    )
+
+
+def forecast_table(report: AuditReport) -> Table | None:
+    """Per horizon, the spread of point forecasts across independent engines, or None."""
+    spread = report.spread
+    if spread is None or spread.empty:
+        return None
+    width_columns = [c for c in spread.columns if str(c).startswith("interval_width_")]
+    level = width_columns[0][len("interval_width_") :] if width_columns else ""
+    steps = len(spread)
+    try:
+        future = [str(x) for x in report.series.future_index(steps)]
+    except Exception:  # labels are a courtesy; a horizon number always works
+        future = [str(h) for h in spread.index]
+    frame = spread.copy()
+    frame.insert(0, "period", future[: len(frame)])
+    engines = spread.attrs.get("engines", [])
+    notes = [
+        "One forecast per independent engine enters the spread, so wrappers of one engine do "
+        "not widen or narrow it"
+        + (f" (engines: {', '.join(map(_plain_text, engines))})." if engines else "."),
+    ]
+    point = report.options.get("point_forecast")
+    if point:
+        notes.append(f"Point forecasts on the original scale are the {point}.")
+    return frame_table(
+        frame,
+        id="forecast-spread",
+        caption="Forecasts: spread of point forecasts across independent engines",
+        corner="step",
+        columns=(
+            ("period", "period", "text"),
+            ("lowest", "lowest", "column"),
+            ("highest", "highest", "column"),
+            ("spread", "spread", "column"),
+            (f"interval_width_{level}", f"reference {level}% interval width", "column"),
+            ("spread_share_of_interval", "spread as share of interval", "percent"),
+        ),
+        notes=notes,
+    )
+
+
+def residual_table(report: AuditReport) -> Table | None:
+    """Ljung-Box tests of each estimator's residuals, or None when there are none."""
+    frame = report.residual_tests
+    if frame is None or frame.empty:
+        return None
+    return frame_table(
+        frame,
+        id="residual-tests",
+        caption="Ljung\u2013Box tests of the one-step residuals",
+        corner="estimator",
+        columns=(
+            ("lags", "lags", "count"),
+            ("df", "degrees of freedom", "count"),
+            ("statistic", "statistic", "column"),
+            ("p_value", "p-value", "pvalue"),
+            ("n", "residuals", "count"),
+        ),
+        notes=(
+            "Residuals after the start-up values lost to differencing; degrees of freedom are "
+            "the lags less the number of ARMA coefficients.",
+        ),
+        flag=lambda column, value: (
+            "low-p" if column == "p_value" and _finite(value) and value < 0.05 else None
+        ),
+    )
+
+
+_ACCURACY_NAMES = {
+    "mae": "MAE",
+    "rmse": "RMSE",
+    "mape": "MAPE",
+    "mase": "MASE",
+    "smape": "sMAPE",
+    "bias": "bias",
+}
+
+
+def _accuracy_heading(column: str) -> str:
+    if column in _ACCURACY_NAMES:
+        return _ACCURACY_NAMES[column]
+    for prefix, words in (("coverage_", "coverage"), ("interval_score_", "interval score")):
+        if column.startswith(prefix):
+            return f"{words} {column[len(prefix) :]}%"
+    return column.replace("_", " ")
+
+
+def holdout_tables(report: AuditReport) -> list[Table]:
+    """Holdout accuracy per estimator and the pairwise comparisons; empty without a holdout."""
+    result = report.holdout
+    if result is None:
+        return []
+    accuracy = result.accuracy
+    columns = [
+        (
+            str(c),
+            _accuracy_heading(str(c)),
+            "percent" if str(c).startswith("coverage_") else "column",
+        )
+        for c in accuracy.columns
+    ]
+    origins = ", ".join(str(o) for o in result.origins)
+    tables = [
+        frame_table(
+            accuracy,
+            id="holdout-accuracy",
+            caption="Holdout accuracy, pooled over forecast origins",
+            corner="estimator",
+            columns=columns,
+            notes=(
+                f"{result.horizon} steps held out after each origin (training lengths: "
+                f"{origins}). Scored on the {result.point_forecast or 'point forecast'}.",
+            ),
+        )
+    ]
+    comparisons = result.comparisons
+    if comparisons is not None and not comparisons.empty:
+        frame = comparisons.copy()
+        frame.index = [f"{a} vs {b}" for a, b in zip(frame["first"], frame["second"], strict=True)]
+        # One note repeats on many rows; print each once under the table, lettered.
+        distinct = list(dict.fromkeys(str(n) for n in frame.get("note", []) if n and str(n)))
+        letters = {note: f"({chr(ord('a') + i)})" for i, note in enumerate(distinct)}
+        if "note" in frame.columns:
+            frame["note"] = [letters.get(str(n), MISSING) for n in frame["note"]]
+        tables.append(
+            frame_table(
+                frame,
+                id="holdout-comparisons",
+                caption="Pairwise Diebold\u2013Mariano tests of holdout accuracy (squared loss)",
+                corner="pair",
+                columns=(
+                    ("mean_loss_difference", "mean loss difference", "column"),
+                    ("dm", "DM", "general"),
+                    ("dm_corrected", "DM, small-sample corrected", "general"),
+                    ("p_value", "p-value", "pvalue"),
+                    ("n", "n", "count"),
+                    ("note", "note", "text"),
+                ),
+                notes=[f"{letter} {note}." for note, letter in letters.items()],
+            )
+        )
+    return tables
