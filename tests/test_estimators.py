@@ -383,13 +383,25 @@ def test_unavailable_through_availability(monkeypatch, log_airline):
     assert (estimate.status, estimate.reason) == ("unavailable", "not installed here")
 
 
-def test_library_exception_is_a_failed_estimate(log_airline):
-    # statsforecast raises ValueError on a series shorter than the model needs.
-    estimate = get_adapter("statsforecast").fit(log_airline[:10], AIRLINE)
+def test_library_exception_is_a_failed_estimate(log_airline, monkeypatch):
+    # The library's own error, raised inside its fit, becomes a failed estimate.
+    import statsforecast.models
+
+    def refuse(self, y, X=None):
+        raise ValueError("Not enough data to fit the model")
+
+    monkeypatch.setattr(statsforecast.models.ARIMA, "fit", refuse)
+    estimate = get_adapter("statsforecast").fit(log_airline, AIRLINE)
     assert estimate.status == "failed"
     assert estimate.reason == "ValueError: Not enough data to fit the model"
     assert "Traceback" in estimate.output and "Not enough data" in estimate.output
     assert estimate.params == {}
+
+
+def test_series_shorter_than_the_differencing_is_refused_before_the_library(log_airline):
+    estimate = get_adapter("statsforecast").fit(log_airline[:10], AIRLINE)
+    assert estimate.status == "failed"
+    assert "no longer than the 13 used up by differencing" in estimate.reason
 
 
 def test_printed_output_is_captured(log_airline, capsys):
