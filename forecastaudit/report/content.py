@@ -338,17 +338,25 @@ def _item(f: Finding) -> FindingItem:
     )
 
 
-def finding_groups(report: AuditReport, limit: int | None = None) -> list[FindingGroup]:
+def finding_groups(
+    report: AuditReport,
+    limit: int | None = None,
+    severities: tuple[str, ...] = ("fail", "warn", "info"),
+) -> list[FindingGroup]:
     """Findings grouped by severity, most severe first; groups without findings left out.
 
     Parameters
     ----------
     limit : int, optional
         Keep at most this many findings in all, the most severe first (for the compact view).
+    severities : tuple of str
+        The severities to include.
     """
     groups = []
     left = math.inf if limit is None else limit
     for severity in ("fail", "warn", "info"):
+        if severity not in severities:
+            continue
         found = report.findings_of(severity)
         if not found or left <= 0:
             continue
@@ -400,7 +408,7 @@ def parameter_table(report: AuditReport) -> Table:
             )
             cells.append(_num(value, "param", "beyond" if beyond else None))
         cells.append(_num(se, "param"))
-        cells.append(Cell(tol_text, numeric=name != "sigma2"))
+        cells.append(Cell(tol_text, numeric=True))
         rows.append(Row(str(name), tuple(cells)))
     notes = (
         "Canonical convention: AR terms with a minus sign, MA terms with a plus sign; mu is "
