@@ -226,15 +226,17 @@ def render_compact_html(report: AuditReport, top: int = 5) -> str:
     report : AuditReport
         The audit to summarise.
     top : int
-        How many findings to show, the most severe first.
+        How many fail and warn findings to show, the most severe first.
 
     Returns
     -------
     str
         An HTML fragment (styles scoped to it): the verdict, counts of findings, the
-        parameter table, the top findings and how to write the full report.
+        parameter table, the most severe fail and warn findings, the caution and how to
+        write the full report.
     """
     shared = _shared(report, with_plots=False)
+    serious = report.findings_of("fail") + report.findings_of("warn")
     table = None if report.parameters.empty else content.parameter_table(report)
     return (
         _environment()
@@ -242,9 +244,10 @@ def render_compact_html(report: AuditReport, top: int = 5) -> str:
         .render(
             summary=shared.summary,
             parameters=table,
-            groups=content.finding_groups(report, limit=top),
-            shown=min(top, len(report.findings)),
-            total=len(report.findings),
+            groups=content.finding_groups(report, limit=top, severities=("fail", "warn")),
+            shown=min(top, len(serious)),
+            total=len(serious),
+            info=len(report.findings_of("info")),
             caution=_caution(),
         )
     )
