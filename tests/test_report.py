@@ -1,0 +1,364 @@
+"""The HTML and Markdown reports and their figures, rendered from one demo audit.
+
+One audit (two estimators of independent engines) is shared by every test in the module;
+variations (a hostile series name, an extra finding, changed parameters) are copies of it.
+"""
+
+from __future__ import annotations
+
+import base64
+import dataclasses
+import re
+import shutil
+import subprocess
+import tempfile
+from pathlib import Path
+
+import markupsafe
+import numpy as np
+import pytest
+
+import forecastaudit as fa
+from forecastaudit.audit import CAUTION
+from forecastaudit.findings import Finding
+from forecastaudit.report import content, plots, render_compact_html, render_html
+from forecastaudit.report.html import SECTIONS
+from forecastaudit.report.markdown import escape_markdown, render_markdown
+
+HOSTILE = '<script>alert(1)</script>&"'
+CHROMIUM = "/usr/bin/chromium"
+
+
+@pytest.fixture(scope="module")
+def report() -> fa.AuditReport:
+    return fa.audit(
+        fa.load_demo(), fa.DEMO_SPEC, estimators=["statsmodels-sarimax", "statsforecast"]
+    )
+
+
+@pytest.fixture(scope="module")
+def html(report: fa.AuditReport) -> str:
+    return render_html(report)
+
+
+@pytest.fixture(scope="module")
+def markdown(report: fa.AuditReport) -> str:
+    return render_markdown(report)
+
+
+@pytest.fixture(scope="module")
+def hostile(report: fa.AuditReport) -> fa.AuditReport:
+    """The same audit with a series name and a finding that try to inject markup."""
+    extra = Finding(
+        "reference-fit",
+        "warn",
+        None,
+        "x_<b>col|umn</b>",
+        f"message with {HOSTILE} and a | pipe\nand a newline",
+    )
+    return dataclasses.replace(
+        report,
+        series=dataclasses.replace(report.series, name=HOSTILE),
+        findings=[*report.findings, extra],
+    )
+
+
+def _escaped(text: str) -> str:
+    return str(markupsafe.escape(text))
+
+
+# ---------------------------------------------------------------------- HTML
+def test_html_opens_with_the_verdict(report: fa.AuditReport, html: str) -> None:
+    verdict = re.search(r'<section id="verdict".*?</section>', html, re.S)
+    assert verdict is not None
+    block = verdict.group(0)
+    assert report.verdict.upper() in block
+    assert str(report.spec) in block
+    assert f"{len(report.series)} observations" in block
+    labels = report.series.labels()
+    assert f"{labels[0]} to {labels[-1]}" in block
+    counts = {s: len(report.findings_of(s)) for s in ("fail", "warn", "info")}
+    for severity, count in counts.items():
+        assert f"{count} {severity}" in block
+    assert "independent engine" in block
+    # The verdict is the first section of the page.
+    assert html.index('id="verdict"') < html.index('id="findings"') < html.index('id="parameters"')
+
+
+def test_html_carries_every_finding_with_its_explanation(report: fa.AuditReport, html: str) -> None:
+    assert report.findings
+    for finding in report.findings:
+        assert _escaped(finding.message) in html
+        assert _escaped(fa.KINDS[finding.kind]) in html
+    for severity in {f.severity for f in report.findings}:
+        assert content.SEVERITY_LABELS[severity]["word"] in html
+
+
+def test_html_findings_are_grouped_most_severe_first(report: fa.AuditReport, html: str) -> None:
+    positions = {
+        s: html.find(f"<h3>{content.SEVERITY_LABELS[s]['heading']} (")
+        for s in ("fail", "warn", "info")
+        if report.findings_of(s)
+    }
+    assert all(p > 0 for p in positions.values())
+    assert list(positions.values()) == sorted(positions.values())
+
+
+def test_html_carries_the_caution(html: str) -> None:
+    assert _escaped(CAUTION) in html
+    assert 'id="caution"' in html
+
+
+def test_html_embeds_images_with_alt_text(html: str) -> None:
+    images = re.findall(r'<img src="data:image/png;base64,([^"]+)" alt="([^"]*)"', html)
+    assert len(images) >= 3  # parameters, series, forecasts at least
+    for payload, alt in images:
+        assert base64.b64decode(payload)[:8] == b"\x89PNG\r\n\x1a\n"
+        assert len(alt) > 40
+
+
+def test_html_is_self_contained(html: str) -> None:
+    assert html.startswith("<!DOCTYPE html>")
+    assert "<script" not in html
+    assert "<link" not in html
+    assert not re.search(r'(src|href)="(https?:)?//', html)
+    assert "<style>" in html and "@media print" in html
+
+
+def test_html_tables(report: fa.AuditReport, html: str) -> None:
+    for table_id in ("parameters", "likelihoods", "estimators", "tolerances", "provenance"):
+        assert f'id="table-{table_id}"' in html
+    for name in report.parameters.index:
+        assert f'<th scope="row">{name}</th>' in html
+    for key, estimate in report.estimates.items():
+        assert f'<th scope="row">{key}</th>' in html
+        assert estimate.engine in html
+    for name in report.tolerances.describe():
+        assert name in html
+
+
+def test_sections_appear_only_with_data(report: fa.AuditReport, html: str) -> None:
+    assert report.holdout is None
+    assert 'id="holdout"' not in html
+    bare = dataclasses.replace(report, spread=None, residual_tests=None, forecasts={})
+    text = render_html(bare)
+    assert 'id="forecasts"' not in text and 'id="residuals"' not in text
+    assert 'id="plot-forecasts"' not in text
+    assert 'id="verdict"' in text and 'id="caution"' in text
+
+
+def test_every_section_template_exists() -> None:
+    folder = Path(fa.__file__).parent / "report" / "templates"
+    for section in SECTIONS:
+        assert (folder / section.template).is_file(), section.template
+
+
+def test_hostile_strings_are_escaped_everywhere(hostile: fa.AuditReport) -> None:
+    for text in (render_html(hostile), render_compact_html(hostile)):
+        assert "<script>alert" not in text
+        assert "<b>col" not in text
+        assert _escaped(HOSTILE) in text
+    page = render_html(hostile)
+    assert f"<title>{hostile.verdict.upper()}: {hostile.spec} on {_escaped(HOSTILE)}" in page
+    assert _escaped("x_<b>col|umn</b>") in page
+
+
+# ---------------------------------------------------------------------- compact view
+def test_compact_view(report: fa.AuditReport, html: str) -> None:
+    compact = report._repr_html_()
+    assert compact == render_compact_html(report)
+    assert report.verdict.upper() in compact
+    assert str(report.spec) in compact
+    assert "<table>" in compact
+    for name in report.parameters.index:
+        assert name in compact
+    assert 'report.to_html("audit.html")' in compact
+    assert _escaped(CAUTION) in compact
+    assert "<img" not in compact and "<html" not in compact
+    assert len(compact) < len(html) / 5
+    serious = report.findings_of("fail") + report.findings_of("warn")
+    for finding in serious[:5]:
+        assert _escaped(finding.message) in compact
+    for finding in report.findings_of("info"):
+        assert _escaped(finding.message) not in compact
+
+
+def test_compact_view_without_serious_findings(report: fa.AuditReport) -> None:
+    quiet = dataclasses.replace(report, findings=report.findings_of("info"))
+    compact = render_compact_html(quiet)
+    assert "PASS" in compact
+    assert "No fail or warn findings" in compact
+
+
+# ---------------------------------------------------------------------- Markdown
+def _pipe_count(line: str) -> int:
+    return len(re.findall(r"(?<!\\)\|", line))
+
+
+def _tables(text: str) -> list[list[str]]:
+    blocks, current = [], []
+    for line in text.splitlines():
+        if line.startswith("|"):
+            current.append(line)
+        elif current:
+            blocks.append(current)
+            current = []
+    if current:
+        blocks.append(current)
+    return blocks
+
+
+def test_markdown_tables_are_well_formed(report: fa.AuditReport, markdown: str) -> None:
+    tables = _tables(markdown)
+    assert len(tables) >= 4  # parameters, likelihoods, estimators, tolerances
+    for table in tables:
+        assert re.fullmatch(r"\| ---(:?) (\| -{3}:? )*\|", table[1]), table[1]
+        widths = {_pipe_count(line) for line in table}
+        assert len(widths) == 1, table
+    headers = [t[0] for t in tables]
+    assert any(h.startswith("| parameter |") for h in headers)
+    assert any(h.startswith("| quantity |") for h in headers)
+    assert any(h.startswith("| tolerance |") for h in headers)
+    for name in report.parameters.index:
+        assert f"| {name} |" in markdown
+
+
+def test_markdown_verdict_findings_and_caution(report: fa.AuditReport, markdown: str) -> None:
+    assert markdown.startswith("## forecastaudit: ")
+    assert f"**Verdict:** {content.VERDICT_LABELS[report.verdict]['symbol']}" in markdown
+    assert report.verdict.upper() in markdown.splitlines()[0]
+    for finding in report.findings_of("fail") + report.findings_of("warn"):
+        assert escape_markdown(finding.message) in markdown
+    infos = report.findings_of("info")
+    if infos:
+        assert "<details>" in markdown and f"{len(infos)} finding" in markdown
+    assert escape_markdown(CAUTION) in markdown
+    assert "### Provenance" in markdown
+    assert report.series.fingerprint in markdown
+
+
+def test_markdown_escapes_hostile_strings(hostile: fa.AuditReport) -> None:
+    text = render_markdown(hostile)
+    assert "<script>" not in text and "<b>" not in text
+    assert "&lt;script&gt;alert(1)&lt;/script&gt;&amp;" in text
+    assert "a \\| pipe and a newline" in text
+
+
+def test_escape_markdown() -> None:
+    assert escape_markdown("a|b") == "a\\|b"
+    assert escape_markdown("<x> & y") == "&lt;x&gt; &amp; y"
+    assert escape_markdown("two\nlines") == "two lines"
+    assert escape_markdown("2*pi [link]") == "2\\*pi \\[link\\]"
+    assert escape_markdown("ma_lag1") == "ma_lag1"  # intraword underscores stay readable
+
+
+# ---------------------------------------------------------------------- content
+def test_format_number() -> None:
+    assert content.format_number(float("nan")) == content.MISSING
+    assert content.format_number(None) == content.MISSING
+    assert content.format_number(-0.0) == "0"
+    assert content.format_number(True) == "yes"
+    assert content.format_number(0.0004, "pvalue") == "<0.001"
+    assert content.format_number(378.551829, "loglike") == "378.5518"
+    assert content.format_number(-0.350223071, "param") == "-0.35022"
+    assert content.column_kind([2950.55, 12.0]) == "fixed1"
+    assert content.column_kind([0.0567, 8.2]) == "fixed4"
+
+
+def test_parameter_table_flags_values_beyond_tolerance(report: fa.AuditReport) -> None:
+    params = report.parameters.copy()
+    name = params.index[0]
+    se = params.at[name, "reference_se"]
+    params.at[name, "statsmodels-sarimax"] = params.at[name, "reference"] + 10 * se
+    params.at[name, "statsforecast"] = params.at[name, "reference"]
+    table = content.parameter_table(dataclasses.replace(report, parameters=params))
+    columns = list(table.columns)
+    row = next(r for r in table.rows if r.header == name)
+    assert row.cells[columns.index("statsmodels-sarimax")].flag == "beyond"
+    assert row.cells[columns.index("statsforecast")].flag is None
+    assert all(r.cells[columns.index("reference")].flag is None for r in table.rows)
+    assert any(content.FLAG_MARKS["beyond"][1] in note for note in table.all_notes)
+
+
+def test_likelihood_table_flags_the_gap(report: fa.AuditReport) -> None:
+    table = content.likelihood_table(report)
+    gap_row = next(r for r in table.rows if r.header.startswith("gap to the best"))
+    gaps = report.likelihoods["gap_to_best"]
+    for key, cell in zip(table.columns, gap_row.cells, strict=True):
+        expected = gaps[key] > report.tolerances.loglike_atol
+        assert (cell.flag == "beyond") == bool(expected), key
+
+
+# ---------------------------------------------------------------------- plots
+def test_plots_are_png_with_alt_text_and_leave_no_state(report: fa.AuditReport) -> None:
+    import matplotlib
+    import matplotlib.pyplot as plt
+
+    backend = matplotlib.get_backend()
+    before = plt.get_fignums()
+    made = plots.report_plots(report)
+    assert {p.id for p in made} >= {"plot-parameters", "plot-series", "plot-forecasts"}
+    for plot in made:
+        assert plot.png[:8] == b"\x89PNG\r\n\x1a\n"
+        assert plot.data_uri.startswith("data:image/png;base64,")
+        assert plot.alt and plot.title and plot.caption
+    assert plt.get_fignums() == before
+    assert matplotlib.get_backend() == backend
+
+
+def test_parameter_plot_alt_names_every_parameter(report: fa.AuditReport) -> None:
+    plot = plots.parameter_plot(report)
+    assert plot is not None
+    for name in report.parameters.index:
+        assert name in plot.alt
+
+
+def test_series_plot_survives_mathtext_characters(report: fa.AuditReport) -> None:
+    named = dataclasses.replace(report, series=dataclasses.replace(report.series, name="$x_1$ $"))
+    assert plots.series_plot(named).png[:4] == b"\x89PNG"
+
+
+def test_likelihood_profile_figure() -> None:
+    t = np.linspace(-0.2, 1.2, 15)
+    plot = plots.likelihood_profile_figure(t, 10.0 - (t - 0.5) ** 2, "a", "b", tolerance=0.01)
+    assert plot.png[:4] == b"\x89PNG"
+    assert "from a to b" in plot.alt
+
+
+# ---------------------------------------------------------------------- in a browser
+def test_page_loads_in_headless_chromium(report: fa.AuditReport, html: str) -> None:
+    if shutil.which(CHROMIUM) is None:
+        pytest.skip(
+            f"{CHROMIUM} is not installed; the browser check of the HTML report did not run"
+        )
+    with tempfile.TemporaryDirectory() as folder:
+        page = Path(folder) / "audit.html"
+        page.write_text(html, encoding="utf-8")
+        profile = Path(folder) / "profile"
+        result = subprocess.run(
+            [
+                CHROMIUM,
+                "--headless",
+                "--no-sandbox",
+                "--disable-gpu",
+                "--disable-quic",
+                "--no-first-run",
+                "--disable-background-networking",
+                "--disable-component-update",
+                "--disable-sync",
+                f"--user-data-dir={profile}",
+                "--dump-dom",
+                page.as_uri(),
+            ],
+            capture_output=True,
+            text=True,
+            timeout=120,
+            check=False,
+        )
+    dom = result.stdout
+    assert result.returncode == 0, result.stderr[-2000:]
+    assert re.search(
+        rf'<span class="badge {report.verdict} big">.*?{report.verdict.upper()}</span>', dom
+    )
+    assert dom.count('src="data:image/png;base64,') == html.count('src="data:image/png;base64,')
+    assert 'id="caution"' in dom
