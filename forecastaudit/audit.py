@@ -212,7 +212,7 @@ def _resolve_estimators(estimators: Iterable[str] | None) -> list[str]:
     return keys
 
 
-def _reference_estimate(y_t: Any, spec: ModelSpec, fit: Any, n_w: int) -> Estimate:
+def _reference_estimate(spec: ModelSpec, fit: Any, n_w: int) -> Estimate:
     params = {name: float(fit.params[name]) for name in parameter_names(spec)}
     k = len(params)
     return Estimate(
