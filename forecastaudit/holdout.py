@@ -132,12 +132,14 @@ def spread_band(
     """Per horizon, the range of point forecasts across independent engines.
 
     One forecast per engine (the first in order) enters, so wrappers of one engine do not
-    widen or narrow the band. Beside it, the reference forecast's interval width at ``level``
+    widen or narrow the band; the forecast at the reference optimum is not an
+    implementation and does not enter. Beside it, the reference forecast's interval width at ``level``
     and the share of that width that the implementation spread takes.
     """
     chosen: dict[str, OriginalScaleForecast] = {}
     for key, fc in forecasts.items():
-        chosen.setdefault(engines[key], fc)
+        if key != reference_key:
+            chosen.setdefault(engines[key], fc)
     stacked = np.vstack([fc.median for fc in chosen.values()])
     ref = forecasts.get(reference_key)
     low, high = stacked.min(axis=0), stacked.max(axis=0)

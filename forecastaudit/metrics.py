@@ -120,7 +120,10 @@ def diebold_mariano(
         DM  = mean(d) / sqrt(V)
         DM* = DM sqrt((T + 1 - 2h + h(h-1)/T) / T),   Student t with T - 1 df.
 
-    Defined behaviour where the formulas break down: when all d_t are equal (gamma_0 = 0)
+    Defined behaviour where the formulas break down: with fewer than 2h loss differentials
+    the lag window covers most of the sample and the correction factor is not positive, so
+    the statistics are NaN (note: use more forecast origins); when all d_t are equal
+    (gamma_0 = 0)
     the statistics are NaN and the p-value is 1 if the mean difference is 0 (identical
     losses), NaN otherwise; when V <= 0 with h > 1 (possible, since the truncated sum of
     autocovariances is not guaranteed positive) V falls back to gamma_0 / T, the h = 1
@@ -146,6 +149,18 @@ def diebold_mariano(
         raise ValueError(f"unknown loss {loss!r}; use 'squared' or 'absolute'")
     T, h = d.size, int(horizon)
     mean = float(np.mean(d))
+    if T < 2 * h:
+        return ComparisonTest(
+            mean,
+            math.nan,
+            math.nan,
+            math.nan,
+            T,
+            h,
+            False,
+            f"only {T} forecast errors for horizon {h}: at least {2 * h} are needed; "
+            "use more forecast origins",
+        )
     centred = d - mean
     gamma = [float(np.dot(centred[k:], centred[: T - k]) / T) for k in range(min(h, T))]
     if gamma[0] <= 0.0:

@@ -99,3 +99,12 @@ def test_ljung_box_matches_statsmodels() -> None:
     assert ours.statistic == pytest.approx(float(theirs["lb_stat"].iloc[0]), rel=1e-10)
     assert ours.p_value == pytest.approx(float(theirs["lb_pvalue"].iloc[0]), rel=1e-8)
     assert ours.df == 22
+
+
+def test_diebold_mariano_needs_twice_the_horizon() -> None:
+    # With T = h the correction factor sqrt((T + 1 - 2h + h(h-1)/T) / T) is 0 (closed form):
+    # the test is reported as undefined rather than as a spurious p = 1.
+    e1, e2 = np.arange(12.0), np.arange(12.0)[::-1]
+    got = diebold_mariano(e1, e2, horizon=12)
+    assert math.isnan(got.statistic) and math.isnan(got.p_value)
+    assert "more forecast origins" in got.note
