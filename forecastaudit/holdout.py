@@ -133,8 +133,8 @@ def spread_band(
 
     One forecast per engine (the first in order) enters, so wrappers of one engine do not
     widen or narrow the band; the forecast at the reference optimum is not an
-    implementation and does not enter. Beside it, the reference forecast's interval width at ``level``
-    and the share of that width that the implementation spread takes.
+    implementation and does not enter. Beside it, the reference forecast's interval width
+    at ``level`` and the share of that width that the implementation spread takes.
     """
     chosen: dict[str, OriginalScaleForecast] = {}
     for key, fc in forecasts.items():
