@@ -10,7 +10,7 @@ from typing import Any
 import pandas as pd
 
 from .compare import REFERENCE_KEY, Rescore, diagnose, likelihood_table, parameter_table
-from .conventions import information_criteria, parameter_names
+from .conventions import coefficient_names, information_criteria, parameter_names
 from .errors import EstimatorError, SeriesError, SpecError
 from .estimators import Estimate, EstimatorAdapter, available_estimators, get_adapter
 from .estimators.base import Forecast
@@ -74,6 +74,13 @@ class AuditReport:
         Ljung-Box tests of each estimator's residuals.
     holdout : HoldoutResult or None
         Holdout accuracy and pairwise comparisons, when a holdout was asked for.
+    profiles : dict of str to pandas.DataFrame
+        For each estimator whose estimate disagrees with the reference optimum, the
+        reference log-likelihood along the straight line from the optimum (t = 0) to that
+        estimate (t = 1): one peak, a ridge, or two optima.
+    likelihood_grid : dict or None
+        For models with two coefficients, the reference log-likelihood on a grid of both
+        around the optimum (``names``, ``x``, ``y``, ``loglike``, ``profiled_loglike``).
     created : str
         UTC time the audit finished (ISO 8601).
     """
@@ -92,6 +99,8 @@ class AuditReport:
     spread: pd.DataFrame | None = None
     residual_tests: pd.DataFrame | None = None
     holdout: HoldoutResult | None = None
+    profiles: dict[str, pd.DataFrame] = field(default_factory=dict)
+    likelihood_grid: dict[str, Any] | None = None
     options: dict[str, Any] = field(default_factory=dict)
     created: str = ""
 
@@ -362,6 +371,7 @@ def audit(
     }
     findings = diagnose(spec, estimates, rescores, reference, standard_errors, tol)
     all_estimates = {**estimates, REFERENCE_KEY: reference}
+    profiles, grid = _likelihood_profiles(_reference, y_t, spec, estimates, reference, findings)
 
     # Forecasts from the full series, with each library's own intervals.
     transformed: dict[str, Forecast] = {}
@@ -415,6 +425,8 @@ def audit(
         spread=spread,
         residual_tests=residual_table,
         holdout=holdout_result,
+        profiles=profiles,
+        likelihood_grid=grid,
         options={
             "estimators": keys,
             "horizon": steps,
@@ -437,6 +449,46 @@ def _check_levels(levels: Sequence[float]) -> tuple[float, ...]:
     if not values or any(not 0 < v < 100 for v in values):
         raise SpecError(f"levels must lie strictly between 0 and 100 (percent); got {levels!r}.")
     return values
+
+
+def _likelihood_profiles(
+    reference_module: Any,
+    y_t: Any,
+    spec: ModelSpec,
+    estimates: Mapping[str, Estimate],
+    reference: Estimate,
+    findings: list[Finding],
+) -> tuple[dict[str, pd.DataFrame], dict[str, Any] | None]:
+    """Profiles towards every disagreeing estimate, and a grid for two-coefficient models."""
+    disagreeing = [
+        f.estimator
+        for f in findings
+        if f.kind in {"stopped-short", "flat-likelihood"} and f.estimator in estimates
+    ]
+    profiles: dict[str, pd.DataFrame] = {}
+    for key in dict.fromkeys(disagreeing):
+        profiles[key] = reference_module.profile_line(
+            y_t, spec, reference.params, estimates[key].params, n_points=41
+        )
+    coefficients = coefficient_names(spec)
+    grid = None
+    if len(coefficients) == 2:
+        points = [reference.params] + [estimates[k].params for k in profiles]
+        ranges = []
+        for name in coefficients:
+            values = [float(p[name]) for p in points]
+            # Cover every disagreeing estimate with room around it (common practice, no
+            # source): at least +-0.1 around the optimum for coefficients.
+            low, high = min(values), max(values)
+            half = max(0.1, 0.75 * (high - low))
+            ranges.append((low - half, high + half))
+        grid = reference_module.profile_grid(
+            y_t, spec, reference.params, tuple(coefficients), ranges=tuple(ranges), n=31
+        )
+        grid["points"] = {REFERENCE_KEY: dict(reference.params)} | {
+            k: dict(estimates[k].params) for k in profiles
+        }
+    return profiles, grid
 
 
 def _check_steps(value: Any, what: str) -> int:

@@ -10,6 +10,7 @@ import argparse
 import sys
 from collections.abc import Sequence
 from pathlib import Path
+from typing import Any
 
 import pandas as pd
 
@@ -20,6 +21,8 @@ EXIT_FINDINGS = 1
 EXIT_USAGE = 2
 
 RECORD_NAME = "forecastaudit-record.json"
+HTML_NAME = "forecastaudit-report.html"
+MARKDOWN_NAME = "forecastaudit-report.md"
 
 _EPILOG = """exit codes:
   0  the audit passed (no finding beyond tolerance); 'demo' also when it ran at all
@@ -97,11 +100,16 @@ def read_series(path: str | Path, column: str | None, date_column: str | None = 
     return series
 
 
-def _write_outputs(report: object, out: Path) -> list[Path]:
+def _write_outputs(report: Any, out: Path) -> list[Path]:
     from .record import write_text_atomic
 
-    written = [write_text_atomic(out / RECORD_NAME, report.to_json())]  # type: ignore[attr-defined]
-    return written
+    # Render everything first, so a rendering error leaves no partial set of files.
+    texts = {
+        RECORD_NAME: report.to_json(),
+        HTML_NAME: report.to_html(),
+        MARKDOWN_NAME: report.to_markdown(),
+    }
+    return [write_text_atomic(out / name, text) for name, text in texts.items()]
 
 
 def _finish(report: object, out: Path | None) -> int:

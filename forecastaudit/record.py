@@ -113,6 +113,10 @@ def build_record(report: AuditReport) -> dict[str, Any]:
                 "spread": _frame_records(report.spread),
             },
             "residual_tests": _frame_rows(report.residual_tests),
+            "likelihood_profiles": {
+                key: _frame_records(frame) for key, frame in report.profiles.items()
+            },
+            "likelihood_grid": _grid(report.likelihood_grid),
             "holdout": report.holdout.to_dict() if report.holdout is not None else None,
             "findings": [f.to_dict() for f in report.findings],
         }
@@ -157,6 +161,18 @@ def validate_record(record: dict[str, Any]) -> None:
         raise RecordError(
             f"The record does not follow schema {SCHEMA_VERSION} at {where}: {first.message}"
         )
+
+
+def _grid(grid: dict[str, Any] | None) -> dict[str, Any] | None:
+    if grid is None:
+        return None
+    return {
+        "names": list(grid["names"]),
+        "x": np.asarray(grid["x"]).tolist(),
+        "y": np.asarray(grid["y"]).tolist(),
+        "profiled_loglike": np.asarray(grid["profiled_loglike"]).tolist(),
+        "points": grid.get("points", {}),
+    }
 
 
 def _frame_rows(frame: Any) -> dict[str, Any] | None:

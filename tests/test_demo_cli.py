@@ -9,7 +9,15 @@ import pandas as pd
 import pytest
 
 import forecastaudit as fa
-from forecastaudit.cli import EXIT_FINDINGS, EXIT_PASS, EXIT_USAGE, RECORD_NAME, main
+from forecastaudit.cli import (
+    EXIT_FINDINGS,
+    EXIT_PASS,
+    EXIT_USAGE,
+    HTML_NAME,
+    MARKDOWN_NAME,
+    RECORD_NAME,
+    main,
+)
 from forecastaudit.demo import generate_demo_series
 
 
@@ -36,6 +44,9 @@ def test_demo_command_writes_a_record(demo_run: tuple[int, Path]) -> None:
     assert record["provenance"]["data"]["n"] == 180
     assert record["verdict"] in {"pass", "fail"}
     assert not [p for p in out.iterdir() if p.name.endswith(".tmp")]
+    html = (out / HTML_NAME).read_text()
+    assert "red_cell_units" in html and "not proof" in html
+    assert "not proof" in (out / MARKDOWN_NAME).read_text()
 
 
 def test_audit_command_on_a_csv(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:

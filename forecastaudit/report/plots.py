@@ -15,7 +15,7 @@ from __future__ import annotations
 import base64
 import io
 import math
-from collections.abc import Mapping, Sequence
+from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import TYPE_CHECKING, Any
 
@@ -31,8 +31,9 @@ __all__ = [
     "Plot",
     "figure_to_png",
     "forecast_plot",
+    "likelihood_grid_plot",
     "likelihood_profile_figure",
-    "likelihood_profile_plot",
+    "likelihood_profile_plots",
     "parameter_plot",
     "report_plots",
     "residual_autocorrelation_plot",
@@ -124,6 +125,10 @@ def figure_to_png(figure: Figure) -> str:
     finally:
         figure.clear()
     return base64.b64encode(buffer.getvalue()).decode("ascii")
+
+
+def _slug(text: str) -> str:
+    return "".join(c if c.isalnum() else "-" for c in str(text)).strip("-").lower() or "x"
 
 
 def _label(text: Any) -> str:
@@ -574,39 +579,77 @@ def likelihood_profile_figure(
     )
 
 
-def likelihood_profile_plot(
-    report: AuditReport, key_a: str, key_b: str, n_points: int = 41
-) -> Plot | None:
-    """Profile of the reference log-likelihood between two estimates (not wired in yet).
+def likelihood_profile_plots(report: AuditReport) -> list[Plot]:
+    """One profile per disagreeing estimate: the reference log-likelihood along the line
+    from the reference optimum (t = 0) to that estimate (t = 1)."""
+    plots = []
+    for key, frame in report.profiles.items():
+        plot = likelihood_profile_figure(
+            frame["t"].to_numpy(),
+            frame["profiled_loglike"].to_numpy(),
+            REFERENCE_KEY,
+            key,
+            report.tolerances.loglike_atol,
+        )
+        plots.append(
+            Plot(
+                id=f"plot-profile-{_slug(key)}",
+                title=f"Likelihood between the reference optimum and {key}",
+                alt=plot.alt,
+                caption=plot.caption,
+                png_base64=plot.png_base64,
+            )
+        )
+    return plots
 
-    Needs ``forecastaudit.reference.profile_line(y_transformed, spec, params_a, params_b,
-    n_points)`` returning the positions and log-likelihoods along the line; returns None
-    while the reference module does not offer it, or when either estimate has no
-    parameters.
-    """
-    try:
-        from .. import reference
-    except ImportError:
+
+def likelihood_grid_plot(report: AuditReport) -> Plot | None:
+    """Contours of the profiled reference log-likelihood over a model's two coefficients,
+    with every disagreeing estimate and the reference optimum marked."""
+    grid = report.likelihood_grid
+    if grid is None:
         return None
-    profile_line = getattr(reference, "profile_line", None)
-    a, b = report.estimates.get(key_a), report.estimates.get(key_b)
-    if profile_line is None or a is None or b is None or not (a.ok and b.ok):
-        return None
-    result = profile_line(
-        report.series.transformed(report.spec), report.spec, a.params, b.params, n_points
+    x, y = np.asarray(grid["x"]), np.asarray(grid["y"])
+    z = np.asarray(grid["profiled_loglike"], dtype=float)
+    best = float(np.nanmax(z))
+    figure = _new_figure(6.4, 4.6)
+    ax = figure.subplots()
+    _style_axes(ax)
+    # Contours at fixed drops below the best: 0.5 and 2 are about the 1- and 2-standard-
+    # error regions of one parameter (likelihood-ratio, chi-square with 1 df / 2).
+    drops = [8.0, 4.5, 2.0, 0.5]
+    levels = [best - d for d in drops if best - d > np.nanmin(z)]
+    if levels:
+        contours = ax.contour(x, y, z, levels=levels, colors=PALETTE["series"], linewidths=1.0)
+        ax.clabel(contours, fmt=lambda v: f"-{best - v:g}", fontsize=7)
+    for i, (key, point) in enumerate(grid.get("points", {}).items()):
+        ax.plot(
+            point[grid["names"][0]],
+            point[grid["names"][1]],
+            marker=MARKERS[i % len(MARKERS)],
+            color=PALETTE["reference"] if key == REFERENCE_KEY else ESTIMATOR_COLOURS[i % 7],
+            linestyle="none",
+            markersize=7,
+            label=_label(key),
+        )
+    ax.set_xlabel(grid["names"][0])
+    ax.set_ylabel(grid["names"][1])
+    ax.legend(fontsize=8, frameon=False, loc="best")
+    names = " and ".join(grid["names"])
+    return Plot(
+        id="plot-likelihood-grid",
+        title=f"Reference log-likelihood over {names}",
+        alt=(
+            f"Contour plot of the profiled reference log-likelihood over {names}; contours "
+            "mark drops of 0.5, 2, 4.5 and 8 below the best value; markers show the reference "
+            "optimum and each disagreeing estimate."
+        ),
+        caption=(
+            "One closed set of contours means one optimum; long parallel contours mean a "
+            "ridge (weak identification); two sets mean two optima."
+        ),
+        png_base64=figure_to_png(figure),
     )
-    t, loglike = _profile_arrays(result)
-    return likelihood_profile_figure(t, loglike, key_a, key_b, report.tolerances.loglike_atol)
-
-
-def _profile_arrays(result: Any) -> tuple[np.ndarray, np.ndarray]:
-    """Positions and log-likelihoods from what ``profile_line`` returns (pair or object)."""
-    if isinstance(result, Mapping):
-        return np.asarray(result["t"]), np.asarray(result["loglike"])
-    if hasattr(result, "t") and hasattr(result, "loglike"):
-        return np.asarray(result.t), np.asarray(result.loglike)
-    t, loglike = result
-    return np.asarray(t), np.asarray(loglike)
 
 
 # ---------------------------------------------------------------------- all of them
@@ -617,5 +660,7 @@ def report_plots(report: AuditReport) -> list[Plot]:
         series_plot(report),
         forecast_plot(report),
         residual_autocorrelation_plot(report),
+        *likelihood_profile_plots(report),
+        likelihood_grid_plot(report),
     ]
     return [plot for plot in made if plot is not None]
