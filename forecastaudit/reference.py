@@ -72,11 +72,16 @@ __all__ = [
 
 Method = Literal["auto", "dense", "banded"]
 
-#: Series of at most this many differenced observations use the dense Toeplitz Cholesky;
-#: longer ones the banded path. Measured with ``benchmarks/bench_reference.py`` (numpy 2.4,
-#: scipy 1.17, ARIMA(1,1,1)x(0,1,1)12): the banded path is as fast or faster from about 40
-#: observations on, and the dense path's O(n^3) cost makes it slower beyond that.
-DENSE_THRESHOLD = 40
+#: ``method="auto"`` uses the dense Toeplitz Cholesky for differenced series of at most this
+#: many observations, and always when a series is too short to band (``n_w <= p + max(p-1,
+#: q)``); the banded path otherwise. Measured with ``benchmarks/bench_reference.py`` and
+#: direct timings of :func:`gaussian_loglike` (numpy 2.4, scipy 1.17, one BLAS thread;
+#: ARIMA(1,1,1)x(0,1,1)12, ARIMA(2,0,1), ARIMA(1,0,1)x(1,0,0)12): the banded path was as
+#: fast or faster at every length that can be banded, from n_w = 15 up (about 50 against 70
+#: microseconds at n_w = 15-60, 100 against 170 at 130), so no length beyond the structural
+#: limit goes to the dense path. It stays as the second, independent exact path (tests
+#: force it with ``method="dense"``).
+DENSE_THRESHOLD = 0
 
 _LOG_2PI = math.log(2.0 * math.pi)
 
@@ -207,8 +212,9 @@ class ReferenceLikelihood:
         Observations in the likelihood (``n_w``).
     method : str
         ``"dense"`` (Toeplitz Cholesky), ``"banded"`` (Ansley transformation),
-        ``"non-stationary"`` (AR part outside the stationary region, nothing evaluated) or
-        ``"singular"`` (covariance matrix not numerically positive definite).
+        ``"non-stationary"`` (AR part outside the stationary region, nothing evaluated),
+        ``"singular"`` (covariance matrix not numerically positive definite) or
+        ``"invalid"`` (a non-finite coefficient or mean; both values NaN).
     stationary : bool
         Whether the AR part is stationary.
     invertible : bool or None
@@ -280,8 +286,9 @@ def gaussian_loglike(
         Innovation variance at which ``loglike`` is evaluated (the profiled value does not
         depend on it).
     method : {"auto", "dense", "banded"}
-        ``"auto"`` uses the dense path up to :data:`DENSE_THRESHOLD` observations (or when the
-        series is too short to band) and the banded path beyond.
+        ``"auto"`` uses the dense path up to :data:`DENSE_THRESHOLD` observations and when
+        the series is too short to band, the banded path otherwise. ``"banded"`` on a series
+        too short to band falls back to the dense path (``method`` in the result says so).
     check_stationarity : bool
         Check the AR part by the step-down recursion (:func:`ar_to_pacf`) and return
         ``-inf`` when it is not stationary. Pass False only when the caller has checked (as
@@ -311,6 +318,8 @@ def gaussian_loglike(
     a = np.trim_zeros(np.asarray(ar, dtype=float).ravel(), "b")
     b = np.trim_zeros(np.asarray(ma, dtype=float).ravel(), "b")
     sigma2 = float(sigma2)
+    if not (np.all(np.isfinite(a)) and np.all(np.isfinite(b)) and math.isfinite(float(mu))):
+        return _failed(n, sigma2, "invalid", stationary=False, value=math.nan)
     if check_stationarity and not _is_stationary(a):
         return _failed(n, sigma2, "non-stationary", stationary=False)
     p, q = a.size, b.size
@@ -347,10 +356,12 @@ def gaussian_loglike(
     )
 
 
-def _failed(n: int, sigma2: float, method: str, *, stationary: bool) -> ReferenceLikelihood:
+def _failed(
+    n: int, sigma2: float, method: str, *, stationary: bool, value: float = -math.inf
+) -> ReferenceLikelihood:
     return ReferenceLikelihood(
-        loglike=-math.inf,
-        profiled_loglike=-math.inf,
+        loglike=value,
+        profiled_loglike=value,
         sigma2_hat=math.nan,
         sigma2=sigma2,
         n=n,
@@ -690,8 +701,9 @@ def evaluate(
     Returns
     -------
     ReferenceLikelihood
-        ``loglike`` is ``-inf`` outside the stationary region and NaN when sigma2 is not a
-        positive number; ``invertible`` says whether the MA factors are invertible.
+        ``loglike`` is ``-inf`` outside the stationary region, NaN when sigma2 is not a
+        positive number, and both values are NaN (method ``"invalid"``) when a coefficient
+        is not finite; ``invertible`` says whether the MA factors are invertible.
 
     Raises
     ------
@@ -707,9 +719,13 @@ def evaluate(
         )
     y = np.asarray(y_transformed, dtype=float).ravel()
     w = difference(y, spec)
-    stationary, invertible = _factor_checks(spec, params)
     sigma2 = float(params["sigma2"])
-    if not stationary:
+    coefficients = [float(params[name]) for name in coefficient_names(spec)]
+    finite = all(math.isfinite(value) for value in coefficients)
+    stationary, invertible = _factor_checks(spec, params) if finite else (False, False)
+    if not finite:
+        result = _failed(w.size, sigma2, "invalid", stationary=False, value=math.nan)
+    elif not stationary:
         result = _failed(w.size, sigma2, "non-stationary", stationary=False)
     else:
         ar, ma = _expanded(spec, params)
@@ -1134,7 +1150,25 @@ def _standard_errors(
         "inverse of the negative central-difference Hessian of the reference log-likelihood "
         "(observed information) at the reference optimum"
     )
+    edge = _near_boundary(spec, params)
+    if edge:
+        note += (
+            f"; the optimum lies at the edge of the stationary/invertible region ({edge}), "
+            "where the usual normal approximation does not hold, so read these values with care"
+        )
     return errors, covariance, note
+
+
+def _near_boundary(spec: ModelSpec, params: Mapping[str, float], margin: float = 1e-3) -> str:
+    """Names of the factors with a partial autocorrelation within ``margin`` of +-1."""
+    found = []
+    for names, sign in _factors(spec):
+        if names:
+            coefs = sign * np.array([float(params[name]) for name in names])
+            pacf = ar_to_pacf(coefs)
+            if not np.all(np.abs(pacf) < 1.0 - margin):
+                found.append("/".join(names))
+    return ", ".join(found)
 
 
 def _step_scale(name: str, value: float, w: np.ndarray) -> float:

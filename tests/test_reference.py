@@ -499,3 +499,35 @@ def test_profile_grid_peaks_at_the_optimum(log_airline, airline_fit):
     assert (i, j) == (5, 5)  # the default ranges are centred on the given values
     assert grid["x"][5] == pytest.approx(airline_fit.params["ma_lag1"])
     assert grid["profiled_loglike"][5, 5] == pytest.approx(airline_fit.profiled_loglike)
+
+
+def test_a_series_too_short_to_band_falls_back_to_the_dense_path():
+    # n_w = 12 with an expanded MA of degree 13: every observation sits in the leading block.
+    # Independent check: statsmodels SARIMAX with simple differencing.
+    rng = np.random.default_rng(3)
+    spec = ModelSpec((0, 0, 1), (0, 0, 1), 12)
+    params = {"ma_lag1": 0.3, "sma_lag12": 0.2, "sigma2": 1.3}
+    y = rng.standard_normal(12)
+    result = evaluate(y, spec, params, method="banded")
+    assert result.method == "dense"
+    model = _sarimax(y, spec)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        theirs = model.loglike(_sarimax_params(model, spec, params))
+    assert result.loglike == pytest.approx(theirs, rel=1e-8)
+
+
+def test_non_finite_coefficients_give_nan_not_an_error(log_airline):
+    result = evaluate(log_airline, AIRLINE, {"ma_lag1": math.nan, "sma_lag12": -0.5,
+                                             "sigma2": 0.001})  # fmt: skip
+    assert result.method == "invalid"
+    assert math.isnan(result.loglike) and math.isnan(result.profiled_loglike)
+
+
+def test_an_optimum_on_the_invertibility_boundary_is_flagged_in_the_note():
+    # White noise differenced once: the exact-ML MA coefficient goes to (near) -1, the
+    # over-differencing signature (common practice, no source).
+    y = np.random.default_rng(5).standard_normal(200)
+    fit = fit_reference(y, ModelSpec((0, 1, 1), (0, 1, 1), 12))
+    assert fit.params["ma_lag1"] < -0.99
+    assert "edge of the stationary/invertible region" in fit.standard_error_note
