@@ -20,15 +20,15 @@ demo: $(VENV)/.installed-all
 	$(VENV)/bin/forecastaudit demo --out $(OUT)
 
 test: $(VENV)/.installed-test
-	$(PY) -m ruff check forecastaudit tests benchmarks scripts
+	$(PY) -m ruff check .
 	$(PY) -m pytest
 
 bench: $(VENV)/.installed-test
 	$(PY) benchmarks/run_all.py
 
 lint: $(VENV)/.installed-test
-	$(PY) -m ruff check forecastaudit tests benchmarks scripts
-	$(PY) -m ruff format --check forecastaudit tests benchmarks scripts
+	$(PY) -m ruff check .
+	$(PY) -m ruff format --check .
 
 clean:
 	rm -rf $(VENV) $(OUT) build *.egg-info
