@@ -648,6 +648,8 @@ def pull_inside(
         fixed = np.real(np.poly(1.0 / roots))  # prod (1 - B / root), ascending in B
         new = np.zeros(len(names))
         new[: fixed.size - 1] = -fixed[1:]
+        if np.array_equal(new, coefs):
+            continue  # near the edge by its partial autocorrelations, but no root to move
         out.update(zip(names, (sign * new).tolist(), strict=True))
         moved = True
     return out, moved
@@ -929,7 +931,7 @@ StartsArgument = (
 )
 
 
-def _labelled_starts(starts: StartsArgument) -> list[tuple[str, Mapping[str, float]]]:
+def _labelled_starts(starts: StartsArgument) -> list[tuple[str, Mapping[str, float] | None]]:
     if starts is None:
         return []
     if isinstance(starts, Mapping):
@@ -1003,14 +1005,19 @@ def fit_reference(
         value = profiled_at(_params_from_search(spec, x, mean_w, scale)).profiled_loglike
         return -value / n if math.isfinite(value) else 1e6
 
-    candidates = [*_labelled_starts(starts), (CLS_LABEL, None)]
+    candidates: list[tuple[str, Mapping[str, float] | None]] = [
+        *_labelled_starts(starts),
+        (CLS_LABEL, None),  # None: computed here, after the given starts are listed
+    ]
     results: list[StartResult] = []
     best_x: np.ndarray | None = None
     best_value = math.inf
     best_index = -1
-    for label, given in candidates:
-        if given is None:
+    for index, (label, given) in enumerate(candidates):
+        if given is None and index == len(candidates) - 1:
             given = conditional_least_squares(y_transformed, spec)
+        if given is None:
+            given = {}
         start = {k: float(v) for k, v in given.items() if _is_number(v)}
         problem = _start_problem(names, start, spec)
         if problem:

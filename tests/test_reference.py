@@ -531,3 +531,14 @@ def test_an_optimum_on_the_invertibility_boundary_is_flagged_in_the_note():
     fit = fit_reference(y, ModelSpec((0, 1, 1), (0, 1, 1), 12))
     assert fit.params["ma_lag1"] < -0.99
     assert "edge of the stationary/invertible region" in fit.standard_error_note
+
+
+@settings(max_examples=100, deadline=None)
+@given(st.lists(st.integers(-300, 300).map(lambda k: k / 100.0), min_size=4, max_size=4))
+def test_any_start_is_pulled_strictly_inside(values):
+    # After pull_inside every factor has partial autocorrelations strictly inside (-1, 1)
+    # (Jones 1980), so the search coordinates are finite.
+    spec = ModelSpec((2, 1, 0), (0, 1, 2), 12)
+    names = ["ar_lag1", "ar_lag2", "sma_lag12", "sma_lag24"]
+    moved, _ = pull_inside(spec, dict(zip(names, values, strict=True)))
+    assert np.all(np.isfinite(to_unconstrained(spec, moved)))
