@@ -3,6 +3,8 @@
 from __future__ import annotations
 
 import json
+import shlex
+import shutil
 from pathlib import Path
 
 import pandas as pd
@@ -124,3 +126,25 @@ def test_estimators_command_lists_engines(capsys: pytest.CaptureFixture[str]) ->
     assert main(["estimators"]) == EXIT_PASS
     text = capsys.readouterr().out
     assert "statsforecast-arima" in text and "statsmodels-statespace" in text
+
+
+def _readme_commands() -> list[list[str]]:
+    readme = (Path(__file__).resolve().parents[1] / "README.md").read_text()
+    section = readme.split("## On the command line", 1)[1]
+    block = section.split("```", 2)[1]
+    joined = block.replace("\\\n", " ")
+    return [shlex.split(line) for line in joined.splitlines() if line.startswith("forecastaudit ")]
+
+
+def test_readme_command_line_examples_run(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    commands = _readme_commands()
+    assert {c[1] for c in commands} == {"demo", "audit", "drift", "estimators"}
+    data = tmp_path / "forecastaudit" / "data"
+    data.mkdir(parents=True)
+    source = Path(fa.__file__).parent / "data" / "ashgrove_red_cell_units.csv"
+    shutil.copy(source, data / source.name)
+    monkeypatch.chdir(tmp_path)
+    for command in commands:
+        code = main([*command[1:], *(["--quiet"] if command[1] in {"demo", "audit"} else [])])
+        assert code in {EXIT_PASS, EXIT_FINDINGS}, command
+    assert (tmp_path / "audit-output" / HTML_NAME).exists()
