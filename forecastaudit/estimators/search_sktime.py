@@ -1,0 +1,171 @@
+"""sktime's automatic order searches, run as their users run them.
+
+``sktime.forecasting.arima.AutoARIMA`` wraps pmdarima's ``auto_arima`` (same engine, the
+candidates are fitted by statsmodels SARIMAX) with sktime's own defaults, among them
+``with_intercept=True`` and ``suppress_warnings=False``.
+``sktime.forecasting.statsforecast.StatsForecastAutoARIMA`` wraps statsforecast's
+``AutoARIMA`` (its compiled engine) with sktime's own defaults. Defaults are read from the
+class signatures at run time; ``trace=True`` is set to count the candidates from the printed
+trace (it changes only what is printed). The differencing tests are those of the wrapped
+library, recomputed with its own functions on the same data.
+"""
+
+from __future__ import annotations
+
+import time
+from typing import Any
+
+import numpy as np
+
+from . import search_pmdarima, search_statsforecast
+from .search_base import (
+    SearchAdapter,
+    SearchResult,
+    SearchSettings,
+    count_trace_lines,
+    register_search,
+)
+from .search_pmdarima import signature_defaults, teed_stdout
+
+
+@register_search
+class SktimeSearch(SearchAdapter):
+    """sktime's ``AutoARIMA`` (pmdarima inside) with sktime's defaults."""
+
+    key = "sktime"
+    engine = search_pmdarima.ENGINE
+    package = "sktime"
+    module = "sktime.forecasting.arima"
+    description = "sktime AutoARIMA (wraps pmdarima auto_arima)"
+
+    def _run(self, y: np.ndarray, m: int, settings: SearchSettings) -> SearchResult:
+        import pandas as pd
+        from sktime.forecasting.arima import AutoARIMA
+
+        overrides = search_pmdarima.settings_to_pmdarima(settings)
+        options: dict[str, Any] = {**signature_defaults(AutoARIMA.__init__), "sp": m}
+        options.update({**overrides, "trace": True})
+        started = time.perf_counter()
+        with teed_stdout() as printed:
+            forecaster = AutoARIMA(sp=m, trace=True, **overrides)
+            forecaster.fit(pd.Series(y))
+        seconds = time.perf_counter() - started
+        model = forecaster._forecaster.model_  # the fitted pmdarima ARIMA sktime holds
+        criterion = str(options["information_criterion"])
+        tests, notes = search_pmdarima.differencing_tests(
+            y,
+            m,
+            test=options["test"],
+            seasonal_test=options["seasonal_test"],
+            alpha=float(options["alpha"]),
+            max_d=int(options["max_d"]),
+            max_D=int(options["max_D"]),
+            d_fixed=settings.d,
+            D_fixed=settings.D,
+            test_args=options.get("offset_test_args"),
+            seasonal_test_args=options.get("seasonal_test_args"),
+        )
+        notes.append(
+            "trace=True is set by forecastaudit to count the candidates; it changes only "
+            "what is printed"
+        )
+        return SearchResult(
+            order=tuple(model.order),
+            seasonal=tuple(model.seasonal_order[:3]),
+            constant=bool(model.with_intercept),
+            criterion=criterion,
+            criterion_value=float(getattr(model, criterion)()),
+            criterion_definition=search_pmdarima._CRITERION_DEFINITIONS.get(criterion, criterion),
+            candidates=count_trace_lines(printed.getvalue(), "ARIMA("),
+            d_decided_by="fixed" if settings.d is not None else "test",
+            D_decided_by="fixed" if settings.D is not None or m == 1 else "test",
+            tests=tests,
+            constant_rule=search_pmdarima.constant_rule(options["with_intercept"]),
+            stepwise=bool(options["stepwise"]),
+            bounds=search_pmdarima.search_bounds(options),
+            options={**options, "_search_seconds": seconds},
+            notes=notes,
+            native=forecaster,
+        )
+
+
+@register_search
+class SktimeStatsforecastSearch(SearchAdapter):
+    """sktime's ``StatsForecastAutoARIMA`` (statsforecast inside) with sktime's defaults."""
+
+    key = "sktime-statsforecast"
+    engine = search_statsforecast.ENGINE
+    package = "sktime"
+    module = "sktime.forecasting.statsforecast"
+    description = "sktime StatsForecastAutoARIMA (wraps statsforecast AutoARIMA)"
+
+    @classmethod
+    def availability(cls) -> str | None:
+        """Both sktime's wrapper and statsforecast itself must import."""
+        missing = super().availability()
+        if missing is not None:
+            return missing
+        try:
+            import statsforecast.models  # noqa: F401
+        except Exception as exc:  # the wrapped library is missing or broken
+            return f"statsforecast could not be imported ({type(exc).__name__}: {exc})"
+        return None
+
+    def _run(self, y: np.ndarray, m: int, settings: SearchSettings) -> SearchResult:
+        import pandas as pd
+        from sktime.forecasting.statsforecast import StatsForecastAutoARIMA
+
+        native = search_statsforecast.settings_to_statsforecast(settings)
+        # sktime's names for statsforecast's options (sktime maps them back on fit).
+        rename = {
+            "ic": "information_criterion",
+            "allowdrift": "trend",
+            "allowmean": "with_intercept",
+        }
+        overrides = {rename.get(k, k): v for k, v in native.items()}
+        options: dict[str, Any] = {**signature_defaults(StatsForecastAutoARIMA.__init__), "sp": m}
+        options.update({**overrides, "trace": True})
+        started = time.perf_counter()
+        with teed_stdout() as printed:
+            forecaster = StatsForecastAutoARIMA(sp=m, trace=True, **overrides)
+            forecaster.fit(pd.Series(y))
+        seconds = time.perf_counter() - started
+        fit = forecaster._forecaster.model_
+        order, seasonal, constant = search_statsforecast.read_selection(fit)
+        criterion = str(options["information_criterion"])
+        tests, notes = search_statsforecast.differencing_tests(
+            y,
+            m,
+            test=options["test"],
+            seasonal_test=options["seasonal_test"],
+            max_d=int(options["max_d"]),
+            max_D=int(options["max_D"]),
+            d_fixed=settings.d,
+            D_fixed=settings.D,
+        )
+        notes.append(
+            "trace=True is set by forecastaudit to count the candidates; it changes only "
+            "what is printed"
+        )
+        return SearchResult(
+            order=order,
+            seasonal=seasonal,
+            constant=constant,
+            criterion=criterion,
+            criterion_value=float(fit[criterion]),
+            criterion_definition=search_statsforecast._CRITERION_DEFINITIONS.get(
+                criterion, criterion
+            ),
+            candidates=count_trace_lines(printed.getvalue(), "ARIMA("),
+            d_decided_by="fixed" if settings.d is not None else "test",
+            D_decided_by="fixed" if settings.D is not None or m == 1 else "test",
+            tests=tests,
+            constant_rule=search_statsforecast.constant_rule(
+                bool(options["trend"]), bool(options["with_intercept"])
+            ),
+            stepwise=bool(options["stepwise"]),
+            bounds={k: options.get(k) for k in ("max_p", "max_q", "max_P", "max_Q", "max_order")},
+            options={**options, "_search_seconds": seconds},
+            notes=notes,
+            native=forecaster,
+        )
