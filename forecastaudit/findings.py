@@ -68,6 +68,29 @@ KINDS: dict[str, str] = {
     "holdout-failure": "The estimator could not be fitted or forecast at a holdout origin.",
     "reference-fit": "A caveat about the reference fit itself (convergence, standard errors).",
     "engine-count": "How many independent engines agree with the reference optimum.",
+    "search-failed": "An automatic order search could not run or returned no model.",
+    "search-disagreement": (
+        "Automatic order searches selected different models; the causes are found by "
+        "re-running one search with one setting harmonised at a time."
+    ),
+    "differencing-decision": (
+        "The stacks' unit-root or seasonal tests chose different numbers of differences on "
+        "the same data."
+    ),
+    "search-rank": (
+        "Where a search's choice ranks by reference AICc among the candidates with its "
+        "differencing (within 2 units = substantial support, Burnham & Anderson 2002)."
+    ),
+    "default-adds-constant": (
+        "Called with its defaults for this order, the library would add a constant, which "
+        "changes the model (with d + D >= 2, a polynomial trend in levels)."
+    ),
+    "rule-of-thumb": "An advisory on the selected model (common practice, no source).",
+    "ranking-flip": (
+        "The ranking of candidate models differs between implementations: the choice of "
+        "model depends on which one is used."
+    ),
+    "ranking-stable": "Every implementation ranks the candidate models the same way.",
 }
 
 
