@@ -132,17 +132,23 @@ class AuditReport:
         ]
 
     # ------------------------------------------------------------------ output
-    def to_dict(self) -> dict[str, Any]:
-        """The audit record as a plain dictionary (see :mod:`forecastaudit.record`)."""
+    def to_dict(self, *, created: str | None = None, timings: bool = True) -> dict[str, Any]:
+        """The audit record as a plain dictionary (see ``record.build_record``)."""
         from .record import build_record
 
-        return build_record(self)
+        return build_record(self, created=created, timings=timings)
 
-    def to_json(self, path: str | None = None) -> str:
-        """The audit record as JSON text; also written (atomically) to ``path`` if given."""
+    def to_json(
+        self, path: str | None = None, *, created: str | None = None, timings: bool = True
+    ) -> str:
+        """The audit record as JSON text; also written (atomically) to ``path`` if given.
+
+        ``created`` fixes the creation time and ``timings=False`` leaves out wall-clock
+        times, so that identical inputs give identical bytes.
+        """
         from .record import dumps, write_text_atomic
 
-        text = dumps(self.to_dict())
+        text = dumps(self.to_dict(created=created, timings=timings))
         if path is not None:
             write_text_atomic(path, text)
         return text

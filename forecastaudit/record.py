@@ -57,6 +57,16 @@ def _version(package: str) -> str | None:
         return None
 
 
+def _blas() -> str | None:
+    """The BLAS numpy was built against, where numpy says (numpy >= 1.25 keeps a CONFIG)."""
+    try:
+        config = np.__config__.CONFIG  # type: ignore[attr-defined]
+        blas = config["Build Dependencies"]["blas"]
+        return f"{blas.get('name')} {blas.get('version', '')}".strip()
+    except (AttributeError, KeyError, TypeError):
+        return None
+
+
 def provenance(report: AuditReport) -> dict[str, Any]:
     """Versions, platform and data fingerprint: what a reviewer needs to reproduce a record."""
     from . import __version__
@@ -68,6 +78,7 @@ def provenance(report: AuditReport) -> dict[str, Any]:
         "platform": platform.platform(),
         "machine": platform.machine(),
         "packages": {name: _version(name) for name in _PROVENANCE_PACKAGES},
+        "blas": _blas(),
         "data": {
             "name": report.series.name,
             "n": len(report.series),
@@ -80,13 +91,26 @@ def provenance(report: AuditReport) -> dict[str, Any]:
     }
 
 
-def build_record(report: AuditReport) -> dict[str, Any]:
-    """The record of an audit as a JSON-ready dictionary, sealed and validated."""
+def build_record(
+    report: AuditReport, *, created: str | None = None, timings: bool = True
+) -> dict[str, Any]:
+    """The record of an audit as a JSON-ready dictionary, sealed and validated.
+
+    Parameters
+    ----------
+    report : AuditReport
+    created : str, optional
+        A fixed creation time to write instead of the audit's own (for byte-identical
+        records of identical inputs).
+    timings : bool
+        Keep wall-clock times (every ``seconds`` field). With ``timings=False`` and a fixed
+        ``created``, the same inputs on the same machine and versions give the same bytes.
+    """
     record = _clean(
         {
             "record": RECORD_KIND,
             "schema_version": SCHEMA_VERSION,
-            "created": report.created,
+            "created": report.created if created is None else created,
             "verdict": report.verdict,
             "spec": report.spec.to_dict(),
             "tolerances": report.tolerances.describe(),
@@ -121,9 +145,19 @@ def build_record(report: AuditReport) -> dict[str, Any]:
             "findings": [f.to_dict() for f in report.findings],
         }
     )
+    if not timings:
+        record = _without(record, "seconds")
     record["content_sha256"] = content_digest(record)
     validate_record(record)
     return record
+
+
+def _without(value: Any, key: str) -> Any:
+    if isinstance(value, dict):
+        return {k: _without(v, key) for k, v in value.items() if k != key}
+    if isinstance(value, list):
+        return [_without(v, key) for v in value]
+    return value
 
 
 def content_digest(record: dict[str, Any]) -> str:

@@ -96,3 +96,16 @@ def test_future_and_foreign_files_are_rejected(small_record: Path, tmp_path: Pat
     write_text_atomic(path, dumps({"record": "forecastaudit-record", "schema_version": "1.0"}))
     with pytest.raises(fa.RecordError, match="does not follow schema"):
         load_record(path)
+
+
+def test_same_inputs_give_the_same_bytes() -> None:
+    y = np.cumsum(np.random.default_rng(8).normal(size=80))
+    texts = [
+        fa.audit(y, "ARIMA(1,1,0)", estimators=["statsmodels-sarimax", "statsforecast"]).to_json(
+            created="2026-01-01T00:00:00+00:00", timings=False
+        )
+        for _ in range(2)
+    ]
+    assert texts[0] == texts[1]
+    assert '"seconds"' not in texts[0]
+    assert json.loads(texts[0])["provenance"]["blas"] is not None
