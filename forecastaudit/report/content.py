@@ -14,6 +14,7 @@ from typing import TYPE_CHECKING, Any
 
 import pandas as pd
 
+from ..compare import REFERENCE_KEY
 from ..findings import KINDS, Finding
 
 if TYPE_CHECKING:
@@ -41,7 +42,6 @@ __all__ = [
     "tolerance_table",
 ]
 
-REFERENCE_KEY = "reference"
 
 # Severity words and symbols: the verdict and severities never rely on colour alone.
 SEVERITY_LABELS: dict[str, dict[str, str]] = {

@@ -23,6 +23,8 @@ import numpy as np
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
+from ..compare import REFERENCE_KEY
+
 if TYPE_CHECKING:
     from ..audit import AuditReport
 
@@ -40,7 +42,6 @@ __all__ = [
     "series_plot",
 ]
 
-REFERENCE_KEY = "reference"
 
 # Our own palette: dark, well separated hues that keep contrast on white paper.
 PALETTE: dict[str, str] = {
