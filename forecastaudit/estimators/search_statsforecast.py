@@ -17,7 +17,6 @@ mismatch is noted.
 from __future__ import annotations
 
 import math
-import warnings
 from typing import Any
 
 import numpy as np
@@ -30,7 +29,7 @@ from .search_base import (
     count_trace_lines,
     register_search,
 )
-from .search_pmdarima import _applied, signature_defaults, teed_stdout
+from .search_pmdarima import _applied, kpss_statistic, signature_defaults, teed_stdout
 
 ENGINE = "statsforecast-arima"
 
@@ -73,7 +72,6 @@ def differencing_tests(
 ) -> tuple[list[DifferencingTest], list[str]]:
     """Every step of statsforecast's differencing decisions on ``y``, with its own tests."""
     from statsforecast.arima import diff, ndiffs, nsdiffs, seas_heuristic
-    from statsmodels.tsa.stattools import kpss
 
     steps: list[DifferencingTest] = []
     notes: list[str] = []
@@ -118,9 +116,7 @@ def differencing_tests(
                 break
             n = level.size
             lags = math.floor(3 * math.sqrt(n) / 13)
-            with warnings.catch_warnings():
-                warnings.simplefilter("ignore")  # p-value outside the table: still reported
-                stat, p_value, *_ = kpss(level, "c", nlags=lags)
+            stat, p_value = kpss_statistic(level, lags)
             says = p_value < 0.05
             steps.append(
                 DifferencingTest(
