@@ -22,6 +22,7 @@ from .errors import (
 from .estimators import Estimate, available_estimators
 from .findings import KINDS, Finding
 from .record import load_record
+from .selection import OrderSearchAudit, audit_order_search, compare_models
 from .spec import ModelSpec
 from .tolerances import Tolerances
 
@@ -35,6 +36,7 @@ __all__ = [
     "Finding",
     "ForecastAuditError",
     "ModelSpec",
+    "OrderSearchAudit",
     "RecordDrift",
     "RecordError",
     "SeriesError",
@@ -43,7 +45,9 @@ __all__ = [
     "Tolerances",
     "__version__",
     "audit",
+    "audit_order_search",
     "available_estimators",
+    "compare_models",
     "compare_records",
     "load_demo",
     "load_record",

@@ -81,6 +81,8 @@ class AuditReport:
     likelihood_grid : dict or None
         For models with two coefficients, the reference log-likelihood on a grid of both
         around the optimum (``names``, ``x``, ``y``, ``loglike``, ``profiled_loglike``).
+    order_search : forecastaudit.selection.OrderSearchAudit or None
+        The order-search audit, when ``order_search=True``.
     created : str
         UTC time the audit finished (ISO 8601).
     """
@@ -101,6 +103,7 @@ class AuditReport:
     holdout: HoldoutResult | None = None
     profiles: dict[str, pd.DataFrame] = field(default_factory=dict)
     likelihood_grid: dict[str, Any] | None = None
+    order_search: Any = None
     options: dict[str, Any] = field(default_factory=dict)
     created: str = ""
 
@@ -285,6 +288,7 @@ def audit(
     levels: Sequence[float] = (80.0, 95.0),
     holdout: int | None = None,
     origins: int = 1,
+    order_search: bool = False,
     progress: bool = False,
 ) -> AuditReport:
     """Fit ``spec`` through every estimator, re-score under the reference likelihood, diagnose.
@@ -316,6 +320,12 @@ def audit(
         Number of forecast origins for the holdout (rolling origin): the last
         ``origins * holdout`` observations are split into consecutive windows, each
         forecast from a fit on everything before it. Default 1.
+    order_search : bool
+        Also audit every installed automatic order search on this series (with the spec's
+        period and transform): selections, the causes of their disagreements, and an
+        exhaustive search under the reference AICc (see
+        :func:`forecastaudit.selection.audit_order_search`). Slow: pmdarima's own search
+        alone takes tens of seconds on a monthly series.
     progress : bool
         Show a progress bar (tqdm) over the estimators.
 
@@ -411,6 +421,19 @@ def audit(
         holdout_result = _run_holdout(series, spec, keys, holdout, origins, level_tuple)
         for key, reason in holdout_result.failures.items():
             findings.append(Finding("holdout-failure", "warn", key, "holdout", reason))
+    search_result = None
+    if order_search:
+        from .selection import audit_order_search
+
+        search_result = audit_order_search(
+            series.values,
+            spec.period,
+            transform=spec.transform,
+            estimators=keys,
+            tolerances=tol,
+            name=series.name,
+        )
+        findings += search_result.findings
     order = {"fail": 0, "warn": 1, "info": 2}
     findings.sort(key=lambda f: order[f.severity])
     for key, e in all_estimates.items():
@@ -433,12 +456,14 @@ def audit(
         holdout=holdout_result,
         profiles=profiles,
         likelihood_grid=grid,
+        order_search=search_result,
         options={
             "estimators": keys,
             "horizon": steps,
             "levels": list(level_tuple),
             "holdout": holdout,
             "origins": origins if holdout else None,
+            "order_search": order_search,
             "point_forecast": point_kind(spec),
         },
         created=_dt.datetime.now(_dt.UTC).replace(microsecond=0).isoformat(),

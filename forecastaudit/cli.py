@@ -155,9 +155,34 @@ def _cmd_audit(args: argparse.Namespace) -> int:
         levels=_parse_levels(args.levels),
         holdout=args.holdout,
         origins=args.origins,
+        order_search=args.order_search,
         progress=not args.quiet,
     )
     return _finish(report, Path(args.out) if args.out else None)
+
+
+def _cmd_compare_models(args: argparse.Namespace) -> int:
+    from .record import dumps, write_text_atomic
+    from .selection import compare_models
+    from .spec import ModelSpec
+
+    specs = [ModelSpec.parse(text) for text in args.model]
+    if len(specs) < 2:
+        raise ForecastAuditError("compare-models needs at least two --model options.")
+    series = read_series(args.data, args.column, args.date_column)
+    estimators = args.estimators.split(",") if args.estimators else None
+    result = compare_models(
+        series,
+        specs,
+        holdout=args.holdout,
+        origins=args.origins,
+        estimators=estimators,
+        period=args.period,
+    )
+    print(result)
+    if args.out:
+        print(f"wrote {write_text_atomic(args.out, dumps(result.to_dict()))}")
+    return EXIT_PASS if result.stable else EXIT_FINDINGS
 
 
 def _cmd_drift(args: argparse.Namespace) -> int:
@@ -247,6 +272,11 @@ def build_parser() -> argparse.ArgumentParser:
         default=1,
         help="number of consecutive holdout windows (rolling origin; default: %(default)s)",
     )
+    run.add_argument(
+        "--order-search",
+        action="store_true",
+        help="also audit every installed automatic order search on this series (slow)",
+    )
     run.add_argument("--out", help="output folder for the record (default: print only)")
     run.add_argument("--quiet", action="store_true", help="no progress bar")
     run.set_defaults(func=_cmd_audit)
@@ -261,6 +291,25 @@ def build_parser() -> argparse.ArgumentParser:
     drift.add_argument("new", help="the new record (JSON)")
     drift.add_argument("--out", help="write the drift table as JSON to this file")
     drift.set_defaults(func=_cmd_drift)
+
+    choose = sub.add_parser(
+        "compare-models",
+        help="is the ranking of candidate models the same in every implementation?",
+        epilog=_EPILOG.replace("the audit passed", "the ranking is the same everywhere"),
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    choose.add_argument("data", help="CSV or Parquet file, one row per period")
+    choose.add_argument("--column", help="column to use (default: the only numeric column)")
+    choose.add_argument("--date-column", help="column of dates (default: the first, if dates)")
+    choose.add_argument(
+        "--model", action="append", required=True, help="a candidate model (repeat, 2 or more)"
+    )
+    choose.add_argument("--holdout", type=int, required=True, help="steps held out per origin")
+    choose.add_argument("--origins", type=int, default=1, help="holdout windows (default: 1)")
+    choose.add_argument("--period", type=int, help="seasonal period, if the dates do not imply it")
+    choose.add_argument("--estimators", help="comma-separated estimator keys (default: all)")
+    choose.add_argument("--out", help="write the comparison as JSON to this file")
+    choose.set_defaults(func=_cmd_compare_models)
 
     est = sub.add_parser("estimators", help="list the estimators, their versions and engines")
     est.set_defaults(func=_cmd_estimators)

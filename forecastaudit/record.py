@@ -142,6 +142,9 @@ def build_record(
             },
             "likelihood_grid": _grid(report.likelihood_grid),
             "holdout": report.holdout.to_dict() if report.holdout is not None else None,
+            "order_search": (
+                report.order_search.to_dict() if report.order_search is not None else None
+            ),
             "findings": [f.to_dict() for f in report.findings],
         }
     )

@@ -138,7 +138,7 @@ def _readme_commands() -> list[list[str]]:
 
 def test_readme_command_line_examples_run(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
     commands = _readme_commands()
-    assert {c[1] for c in commands} == {"demo", "audit", "drift", "estimators"}
+    assert {c[1] for c in commands} == {"demo", "audit", "drift", "compare-models", "estimators"}
     data = tmp_path / "forecastaudit" / "data"
     data.mkdir(parents=True)
     source = Path(fa.__file__).parent / "data" / "ashgrove_red_cell_units.csv"
@@ -148,3 +148,24 @@ def test_readme_command_line_examples_run(tmp_path: Path, monkeypatch: pytest.Mo
         code = main([*command[1:], *(["--quiet"] if command[1] in {"demo", "audit"} else [])])
         assert code in {EXIT_PASS, EXIT_FINDINGS}, command
     assert (tmp_path / "audit-output" / HTML_NAME).exists()
+
+
+def test_order_search_joins_the_audit_record_and_reports(tmp_path: Path) -> None:
+    # Nile without a period: the searches are cheap (no seasonal part).
+    from statsmodels.datasets import nile
+
+    volume = nile.load_pandas().data["volume"].to_numpy()
+    report = fa.audit(
+        volume,
+        "ARIMA(0,1,1)",
+        estimators=["statsmodels-sarimax", "statsforecast"],
+        order_search=True,
+    )
+    record = json.loads(report.to_json())
+    assert record["options"]["order_search"] is True
+    searched = {row["search"] for row in record["order_search"]["selections"]}
+    assert searched >= {"pmdarima", "statsforecast"}
+    assert any(f["kind"] == "search-rank" for f in record["findings"])
+    html = report.to_html()
+    assert "Order searches" in html and "Automatic order searches" in html
+    assert "Automatic order searches" in report.to_markdown()

@@ -211,9 +211,9 @@ def test_ar1_mean_agrees_and_is_the_simulated_mean(ar1_mean10):
     sarimax = fits["statsmodels-sarimax"]
     c, phi = sarimax.native_params["intercept"], sarimax.native_params["ar.L1"]
     assert sarimax.params["mu"] == pytest.approx(c / (1 - phi), rel=1e-12)  # mu = c / phi(1)
-    assert fits["statsmodels-arima"].params["mu"] == fits["statsmodels-arima"].native_params[
-        "const"
-    ]
+    assert (
+        fits["statsmodels-arima"].params["mu"] == fits["statsmodels-arima"].native_params["const"]
+    )
     assert fits["statsforecast"].params["mu"] == fits["statsforecast"].native_params["intercept"]
     for key in ("pmdarima", "sktime"):
         native = fits[key].native_params

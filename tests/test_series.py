@@ -122,8 +122,11 @@ def test_nan_and_inf_name_their_positions():
     y = np.arange(20.0)
     y[[3, 11]] = np.nan
     y[15] = np.inf
-    with pytest.raises(SeriesError, match=r"3 missing or infinite value\(s\) at position\(s\) "
-                       r"3, 11, 15\."):
+    with pytest.raises(
+        SeriesError,
+        match=r"3 missing or infinite value\(s\) at position\(s\) "
+        r"3, 11, 15\.",
+    ):
         prepare_series(y)
     many = np.full(10, np.nan)
     with pytest.raises(SeriesError, match=r"position\(s\) 0, 1, 2, 3, 4 \.\.\."):
@@ -141,14 +144,20 @@ def test_missing_entries_of_every_kind():
 def test_non_numeric_strings():
     with pytest.raises(SeriesError, match=r"Observation 2 of 'y' is 'n/a' \(str\), not a number"):
         prepare_series([1.0, 2.0, "n/a", 4.0])
-    with pytest.raises(SeriesError, match=r"'sales' holds numbers as text \(observation 0 is "
-                       r"'12'\); convert the column to numbers first"):
+    with pytest.raises(
+        SeriesError,
+        match=r"'sales' holds numbers as text \(observation 0 is "
+        r"'12'\); convert the column to numbers first",
+    ):
         prepare_series(pd.Series(["12", "13"], name="sales"))
     with pytest.raises(SeriesError, match="holds numbers as text"):
         prepare_series(np.array(["1.0", "2.0"]))
     # Text numbers with one entry that is not a number: the message names that entry.
-    with pytest.raises(SeriesError, match=r"Observation 2 of 'units' is 'x' \(str\), not a "
-                       r"number, and the column holds numbers as text \(observation 0 is '1'\)"):
+    with pytest.raises(
+        SeriesError,
+        match=r"Observation 2 of 'units' is 'x' \(str\), not a "
+        r"number, and the column holds numbers as text \(observation 0 is '1'\)",
+    ):
         prepare_series(pd.Series(["1", "2", "x", "4"], name="units"))
 
 
@@ -168,8 +177,12 @@ def test_a_number_too_large_for_float64():
 
 
 def test_booleans():
-    for y in ([True, False, True], np.array([True, False]), pd.Series([1.0, True], dtype=object),
-              np.array([np.True_, 1.0], dtype=object)):
+    for y in (
+        [True, False, True],
+        np.array([True, False]),
+        pd.Series([1.0, True], dtype=object),
+        np.array([np.True_, 1.0], dtype=object),
+    ):
         with pytest.raises(SeriesError, match="holds True/False values; pass numbers"):
             prepare_series(y)
 
@@ -262,8 +275,11 @@ def test_seasonal_terms_need_two_cycles():
 
 def test_log_of_non_positive_data():
     prepared = prepare_series(np.array([1.0, 2.0, 0.0, -1.0]), name="units")
-    with pytest.raises(SeriesError, match=r"log transform needs strictly positive values, but "
-                       r"observation 2 of 'units' is 0.0"):
+    with pytest.raises(
+        SeriesError,
+        match=r"log transform needs strictly positive values, but "
+        r"observation 2 of 'units' is 0.0",
+    ):
         prepared.transformed(ModelSpec(transform="log"))
     with pytest.raises(SeriesError, match=r"boxcox\(0.5\) transform needs strictly positive"):
         prepared.transformed(ModelSpec(transform=("boxcox", 0.5)))
@@ -299,8 +315,9 @@ def test_the_callers_array_is_never_modified():
 
 def test_a_series_view_is_never_modified(log_airline_series):
     original = log_airline_series.copy()
-    frame = pd.DataFrame({"v": log_airline_series.to_numpy(copy=True)},
-                         index=log_airline_series.index)
+    frame = pd.DataFrame(
+        {"v": log_airline_series.to_numpy(copy=True)}, index=log_airline_series.index
+    )
     view = frame["v"].iloc[12:]
     base_before = frame.copy()
     prepared = prepare_series(view)

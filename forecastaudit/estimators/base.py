@@ -448,7 +448,31 @@ def _run_captured(func: Any, *args: Any) -> _Captured:
     return _Captured(result, error, trace, captured, printed, seconds)
 
 
-class EstimatorAdapter(ABC):
+class LibraryBound:
+    """Version and availability of the library an adapter calls (``package``, ``module``)."""
+
+    package: ClassVar[str]
+    module: ClassVar[str]
+
+    @classmethod
+    def version(cls) -> str | None:
+        """Installed version of the package, or None when it is not installed."""
+        try:
+            return importlib.metadata.version(cls.package)
+        except importlib.metadata.PackageNotFoundError:
+            return None
+
+    @classmethod
+    def availability(cls) -> str | None:
+        """None when the library imports; otherwise the reason it does not."""
+        try:
+            importlib.import_module(cls.module)
+        except Exception as exc:  # any import failure makes the adapter unavailable
+            return f"{cls.module} could not be imported ({type(exc).__name__}: {exc})"
+        return None
+
+
+class EstimatorAdapter(LibraryBound, ABC):
     """Base class of the estimator adapters.
 
     Subclasses set the class attributes and implement :meth:`_fit`. Everything else
@@ -480,23 +504,6 @@ class EstimatorAdapter(ABC):
     capabilities: ClassVar[Capabilities]
 
     # ------------------------------------------------------------------ declared checks
-    @classmethod
-    def version(cls) -> str | None:
-        """Installed version of the package, or None when it is not installed."""
-        try:
-            return importlib.metadata.version(cls.package)
-        except importlib.metadata.PackageNotFoundError:
-            return None
-
-    @classmethod
-    def availability(cls) -> str | None:
-        """None when the library imports; otherwise the reason it does not."""
-        try:
-            importlib.import_module(cls.module)
-        except Exception as exc:  # any import failure makes the estimator unavailable
-            return f"{cls.module} could not be imported ({type(exc).__name__}: {exc})"
-        return None
-
     @classmethod
     def unsupported_reason(cls, spec: ModelSpec) -> str | None:
         """None when the declared capabilities cover ``spec``; otherwise why not."""

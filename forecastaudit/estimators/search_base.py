@@ -26,7 +26,7 @@ import numpy as np
 
 from ..errors import EstimatorError
 from ..spec import ModelSpec
-from .base import CapturedWarning, _plain, _run_captured
+from .base import CapturedWarning, LibraryBound, _plain, _run_captured
 
 __all__ = [
     "CONSTANT_RULES",
@@ -302,7 +302,7 @@ def _finite(value: Any) -> Any:
     return value
 
 
-class SearchAdapter(ABC):
+class SearchAdapter(LibraryBound, ABC):
     """Base class of the order-search adapters.
 
     Attributes
@@ -324,23 +324,6 @@ class SearchAdapter(ABC):
     package: ClassVar[str]
     module: ClassVar[str]
     description: ClassVar[str]
-
-    @classmethod
-    def version(cls) -> str | None:
-        """Installed version of the package, or None."""
-        try:
-            return importlib.metadata.version(cls.package)
-        except importlib.metadata.PackageNotFoundError:
-            return None
-
-    @classmethod
-    def availability(cls) -> str | None:
-        """None when the library imports; otherwise the reason it does not."""
-        try:
-            importlib.import_module(cls.module)
-        except Exception as exc:  # any import failure makes the search unavailable
-            return f"{cls.module} could not be imported ({type(exc).__name__}: {exc})"
-        return None
 
     def run(
         self,

@@ -247,6 +247,60 @@ def settings_to_pmdarima(settings: SearchSettings) -> dict[str, Any]:
     return kwargs
 
 
+def result_from_model(
+    model: Any,
+    y: np.ndarray,
+    m: int,
+    settings: SearchSettings,
+    options: dict[str, Any],
+    printed: str,
+    seconds: float,
+    native: Any,
+) -> SearchResult:
+    """Read a search result from the fitted pmdarima ARIMA that ``auto_arima`` returned.
+
+    Shared by every wrapper of pmdarima's search (its engine): the selection, the
+    criterion, the candidates counted from the printed trace, and the differencing tests
+    recomputed with pmdarima's own functions on the same data.
+    """
+    criterion = str(options["information_criterion"])
+    tests, notes = differencing_tests(
+        y,
+        m,
+        test=options["test"],
+        seasonal_test=options["seasonal_test"],
+        alpha=float(options["alpha"]),
+        max_d=int(options["max_d"]),
+        max_D=int(options["max_D"]),
+        d_fixed=settings.d,
+        D_fixed=settings.D,
+        test_args=options.get("offset_test_args"),
+        seasonal_test_args=options.get("seasonal_test_args"),
+    )
+    notes.append(
+        "trace=True is set by forecastaudit to count the candidates; it changes only "
+        "what is printed"
+    )
+    return SearchResult(
+        order=tuple(model.order),
+        seasonal=tuple(model.seasonal_order[:3]),
+        constant=bool(model.with_intercept),
+        criterion=criterion,
+        criterion_value=float(getattr(model, criterion)()),
+        criterion_definition=_CRITERION_DEFINITIONS.get(criterion, criterion),
+        candidates=count_trace_lines(printed, "ARIMA("),
+        d_decided_by="fixed" if settings.d is not None else "test",
+        D_decided_by="fixed" if settings.D is not None or m == 1 else "test",
+        tests=tests,
+        constant_rule=constant_rule(options["with_intercept"]),
+        stepwise=bool(options["stepwise"]),
+        bounds=search_bounds(options),
+        options={**options, "_search_seconds": seconds},
+        notes=notes,
+        native=native,
+    )
+
+
 @register_search
 class PmdarimaSearch(SearchAdapter):
     """pmdarima's ``auto_arima`` with its defaults."""
@@ -269,39 +323,4 @@ class PmdarimaSearch(SearchAdapter):
         with teed_stdout() as printed:
             model = auto_arima(y, **call)
         seconds = time.perf_counter() - started
-        criterion = str(options["information_criterion"])
-        tests, notes = differencing_tests(
-            y,
-            m,
-            test=options["test"],
-            seasonal_test=options["seasonal_test"],
-            alpha=float(options["alpha"]),
-            max_d=int(options["max_d"]),
-            max_D=int(options["max_D"]),
-            d_fixed=settings.d,
-            D_fixed=settings.D,
-            test_args=options.get("offset_test_args"),
-            seasonal_test_args=options.get("seasonal_test_args"),
-        )
-        notes.append(
-            "trace=True is set by forecastaudit to count the candidates; it changes only "
-            "what is printed"
-        )
-        return SearchResult(
-            order=tuple(model.order),
-            seasonal=tuple(model.seasonal_order[:3]),
-            constant=bool(model.with_intercept),
-            criterion=criterion,
-            criterion_value=float(getattr(model, criterion)()),
-            criterion_definition=_CRITERION_DEFINITIONS.get(criterion, criterion),
-            candidates=count_trace_lines(printed.getvalue(), "ARIMA("),
-            d_decided_by="fixed" if settings.d is not None else "test",
-            D_decided_by="fixed" if settings.D is not None or m == 1 else "test",
-            tests=tests,
-            constant_rule=constant_rule(options["with_intercept"]),
-            stepwise=bool(options["stepwise"]),
-            bounds=search_bounds(options),
-            options={**options, "_search_seconds": seconds},
-            notes=notes,
-            native=model,
-        )
+        return result_from_model(model, y, m, settings, options, printed.getvalue(), seconds, model)

@@ -51,41 +51,8 @@ class SktimeSearch(SearchAdapter):
             forecaster.fit(pd.Series(y))
         seconds = time.perf_counter() - started
         model = forecaster._forecaster.model_  # the fitted pmdarima ARIMA sktime holds
-        criterion = str(options["information_criterion"])
-        tests, notes = search_pmdarima.differencing_tests(
-            y,
-            m,
-            test=options["test"],
-            seasonal_test=options["seasonal_test"],
-            alpha=float(options["alpha"]),
-            max_d=int(options["max_d"]),
-            max_D=int(options["max_D"]),
-            d_fixed=settings.d,
-            D_fixed=settings.D,
-            test_args=options.get("offset_test_args"),
-            seasonal_test_args=options.get("seasonal_test_args"),
-        )
-        notes.append(
-            "trace=True is set by forecastaudit to count the candidates; it changes only "
-            "what is printed"
-        )
-        return SearchResult(
-            order=tuple(model.order),
-            seasonal=tuple(model.seasonal_order[:3]),
-            constant=bool(model.with_intercept),
-            criterion=criterion,
-            criterion_value=float(getattr(model, criterion)()),
-            criterion_definition=search_pmdarima._CRITERION_DEFINITIONS.get(criterion, criterion),
-            candidates=count_trace_lines(printed.getvalue(), "ARIMA("),
-            d_decided_by="fixed" if settings.d is not None else "test",
-            D_decided_by="fixed" if settings.D is not None or m == 1 else "test",
-            tests=tests,
-            constant_rule=search_pmdarima.constant_rule(options["with_intercept"]),
-            stepwise=bool(options["stepwise"]),
-            bounds=search_pmdarima.search_bounds(options),
-            options={**options, "_search_seconds": seconds},
-            notes=notes,
-            native=forecaster,
+        return search_pmdarima.result_from_model(
+            model, y, m, settings, options, printed.getvalue(), seconds, forecaster
         )
 
 

@@ -12,6 +12,7 @@ from collections.abc import Callable, Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
 
+import numpy as np
 import pandas as pd
 
 from ..compare import REFERENCE_KEY
@@ -34,6 +35,7 @@ __all__ = [
     "format_number",
     "holdout_tables",
     "likelihood_table",
+    "order_search_tables",
     "package_table",
     "parameter_table",
     "provenance_table",
@@ -740,6 +742,53 @@ def _accuracy_heading(column: str) -> str:
         if column.startswith(prefix):
             return f"{words} {column[len(prefix) :]}%"
     return column.replace("_", " ")
+
+
+_ORDER_SEARCH_TABLES = (
+    ("selections", "Automatic order searches: what each stack selected"),
+    ("differencing_tests", "Differencing decisions: each stack's tests on the same data"),
+    ("decomposition", "Causes of the disagreements: re-runs with one setting harmonised"),
+    ("candidates", "Exhaustive search under the reference AICc: candidates within 2 units"),
+    ("default_constant", "What each stack would add with its defaults"),
+    ("timings", "Search times"),
+)
+
+
+def order_search_tables(report: AuditReport) -> list[Table]:
+    """The order-search audit's tables; empty when it did not run."""
+    result = getattr(report, "order_search", None)
+    if result is None:
+        return []
+    tables = []
+    for name, caption in _ORDER_SEARCH_TABLES:
+        frame = getattr(result, name, None)
+        if frame is None or frame.empty:
+            continue
+        tables.append(
+            frame_table(
+                frame,
+                id=f"order-search-{name.replace('_', '-')}",
+                caption=caption,
+                corner=str(frame.index.name or ""),
+                columns=[
+                    (str(c), str(c).replace("_", " "), _kind(frame[c]))
+                    for c in frame.columns
+                    if not any(isinstance(v, dict | list) for v in frame[c])  # kept in the record
+                ],
+            )
+        )
+    return tables
+
+
+def _kind(values: pd.Series) -> str:
+    """Text for words, whole numbers without decimals, else one precision for the column."""
+    present = [v for v in values if v is not None and not (isinstance(v, float) and math.isnan(v))]
+    numbers = (int, float, np.integer, np.floating)
+    if any(isinstance(v, bool | np.bool_) or not isinstance(v, numbers) for v in present):
+        return "text"
+    if present and all(float(v).is_integer() for v in present):
+        return "fixed0"
+    return "column"
 
 
 def holdout_tables(report: AuditReport) -> list[Table]:

@@ -108,6 +108,10 @@ def _holdout(shared: _Shared) -> dict[str, Any] | None:
     return _tables(*content.holdout_tables(shared.report))
 
 
+def _order_search(shared: _Shared) -> dict[str, Any] | None:
+    return _tables(*content.order_search_tables(shared.report))
+
+
 def _plots(shared: _Shared) -> dict[str, Any] | None:
     return {"plots": shared.plots} if shared.plots else None
 
@@ -143,6 +147,7 @@ SECTIONS: tuple[Section, ...] = (
     Section("forecasts", "Forecasts", "section_tables.html.j2", _forecasts),
     Section("residuals", "Residual checks", "section_tables.html.j2", _residuals),
     Section("holdout", "Holdout accuracy", "section_tables.html.j2", _holdout),
+    Section("order-search", "Order searches", "section_tables.html.j2", _order_search),
     Section("plots", "Plots", "section_plots.html.j2", _plots),
     Section("tolerances", "Tolerances", "section_tables.html.j2", _tolerances),
     Section("provenance", "Provenance", "section_tables.html.j2", _provenance),

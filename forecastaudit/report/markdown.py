@@ -142,6 +142,7 @@ def render_markdown(report: AuditReport) -> str:
         content.forecast_table(report),
         content.residual_table(report),
         *content.holdout_tables(report),
+        *content.order_search_tables(report),
         content.tolerance_table(report),
     ]
     for table in tables:
