@@ -22,7 +22,6 @@ from .search_base import (
     SearchAdapter,
     SearchResult,
     SearchSettings,
-    count_trace_lines,
     register_search,
 )
 from .search_pmdarima import signature_defaults, teed_stdout
@@ -97,42 +96,16 @@ class SktimeStatsforecastSearch(SearchAdapter):
             forecaster = StatsForecastAutoARIMA(sp=m, trace=True, **overrides)
             forecaster.fit(pd.Series(y))
         seconds = time.perf_counter() - started
-        fit = forecaster._forecaster.model_
-        order, seasonal, constant = search_statsforecast.read_selection(fit)
-        criterion = str(options["information_criterion"])
-        tests, notes = search_statsforecast.differencing_tests(
+        return search_statsforecast.result_from_fit(
+            forecaster._forecaster.model_,
             y,
             m,
-            test=options["test"],
-            seasonal_test=options["seasonal_test"],
-            max_d=int(options["max_d"]),
-            max_D=int(options["max_D"]),
-            d_fixed=settings.d,
-            D_fixed=settings.D,
-        )
-        notes.append(
-            "trace=True is set by forecastaudit to count the candidates; it changes only "
-            "what is printed"
-        )
-        return SearchResult(
-            order=order,
-            seasonal=seasonal,
-            constant=constant,
-            criterion=criterion,
-            criterion_value=float(fit[criterion]),
-            criterion_definition=search_statsforecast._CRITERION_DEFINITIONS.get(
-                criterion, criterion
-            ),
-            candidates=count_trace_lines(printed.getvalue(), "ARIMA("),
-            d_decided_by="fixed" if settings.d is not None else "test",
-            D_decided_by="fixed" if settings.D is not None or m == 1 else "test",
-            tests=tests,
-            constant_rule=search_statsforecast.constant_rule(
-                bool(options["trend"]), bool(options["with_intercept"])
-            ),
-            stepwise=bool(options["stepwise"]),
-            bounds={k: options.get(k) for k in ("max_p", "max_q", "max_P", "max_Q", "max_order")},
-            options={**options, "_search_seconds": seconds},
-            notes=notes,
+            settings,
+            options,
+            criterion=str(options["information_criterion"]),
+            allow_drift=bool(options["trend"]),
+            allow_mean=bool(options["with_intercept"]),
+            printed=printed.getvalue(),
+            seconds=seconds,
             native=forecaster,
         )

@@ -173,6 +173,60 @@ def read_selection(fit: dict[str, Any]) -> tuple[tuple[int, int, int], tuple[int
     return (p, d, q), (P, D, Q), bool(names & {"intercept", "drift"})
 
 
+def result_from_fit(
+    fit: dict[str, Any],
+    y: np.ndarray,
+    m: int,
+    settings: SearchSettings,
+    options: dict[str, Any],
+    *,
+    criterion: str,
+    allow_drift: bool,
+    allow_mean: bool,
+    printed: str,
+    seconds: float,
+    native: Any,
+) -> SearchResult:
+    """Read a search result from the ``model_`` dict of a fitted statsforecast AutoARIMA.
+
+    Shared by every wrapper of statsforecast's search (its engine); the wrappers name the
+    criterion and constant options differently, so they pass them in.
+    """
+    order, seasonal, constant = read_selection(fit)
+    tests, notes = differencing_tests(
+        y,
+        m,
+        test=options["test"],
+        seasonal_test=options["seasonal_test"],
+        max_d=int(options["max_d"]),
+        max_D=int(options["max_D"]),
+        d_fixed=settings.d,
+        D_fixed=settings.D,
+    )
+    notes.append(
+        "trace=True is set by forecastaudit to count the candidates; it changes only "
+        "what is printed"
+    )
+    return SearchResult(
+        order=order,
+        seasonal=seasonal,
+        constant=constant,
+        criterion=criterion,
+        criterion_value=float(fit[criterion]),
+        criterion_definition=_CRITERION_DEFINITIONS.get(criterion, criterion),
+        candidates=count_trace_lines(printed, "ARIMA("),
+        d_decided_by="fixed" if settings.d is not None else "test",
+        D_decided_by="fixed" if settings.D is not None or m == 1 else "test",
+        tests=tests,
+        constant_rule=constant_rule(allow_drift, allow_mean),
+        stepwise=bool(options["stepwise"]),
+        bounds={k: options.get(k) for k in ("max_p", "max_q", "max_P", "max_Q", "max_order")},
+        options={**options, "_search_seconds": seconds},
+        notes=notes,
+        native=native,
+    )
+
+
 @register_search
 class StatsforecastSearch(SearchAdapter):
     """statsforecast's ``AutoARIMA`` with its defaults."""
@@ -196,38 +250,16 @@ class StatsforecastSearch(SearchAdapter):
             model = AutoARIMA(season_length=m, trace=True, **overrides)
             model.fit(y)
         seconds = time.perf_counter() - started
-        fit = model.model_
-        order, seasonal, constant = read_selection(fit)
-        criterion = str(options["ic"])
-        tests, notes = differencing_tests(
+        return result_from_fit(
+            model.model_,
             y,
             m,
-            test=options["test"],
-            seasonal_test=options["seasonal_test"],
-            max_d=int(options["max_d"]),
-            max_D=int(options["max_D"]),
-            d_fixed=settings.d,
-            D_fixed=settings.D,
-        )
-        notes.append(
-            "trace=True is set by forecastaudit to count the candidates; it changes only "
-            "what is printed"
-        )
-        return SearchResult(
-            order=order,
-            seasonal=seasonal,
-            constant=constant,
-            criterion=criterion,
-            criterion_value=float(fit[criterion]),
-            criterion_definition=_CRITERION_DEFINITIONS.get(criterion, criterion),
-            candidates=count_trace_lines(printed.getvalue(), "ARIMA("),
-            d_decided_by="fixed" if settings.d is not None else "test",
-            D_decided_by="fixed" if settings.D is not None or m == 1 else "test",
-            tests=tests,
-            constant_rule=constant_rule(bool(options["allowdrift"]), bool(options["allowmean"])),
-            stepwise=bool(options["stepwise"]),
-            bounds={k: options.get(k) for k in ("max_p", "max_q", "max_P", "max_Q", "max_order")},
-            options={**options, "_search_seconds": seconds},
-            notes=notes,
+            settings,
+            options,
+            criterion=str(options["ic"]),
+            allow_drift=bool(options["allowdrift"]),
+            allow_mean=bool(options["allowmean"]),
+            printed=printed.getvalue(),
+            seconds=seconds,
             native=model,
         )
