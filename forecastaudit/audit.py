@@ -7,10 +7,11 @@ from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
+import numpy as np
 import pandas as pd
 
 from .compare import REFERENCE_KEY, Rescore, diagnose, likelihood_table, parameter_table
-from .conventions import coefficient_names, information_criteria, parameter_names
+from .conventions import coefficient_names, difference, information_criteria, parameter_names
 from .errors import EstimatorError, SeriesError, SpecError
 from .estimators import Estimate, EstimatorAdapter, available_estimators, get_adapter
 from .estimators.base import Forecast
@@ -349,6 +350,7 @@ def audit(
     series = prepare_series(y, period=period, name=name)
     spec = _resolve_spec(spec, series.period)
     check_length(series, spec)
+    _check_not_constant(series, spec)
     keys = _resolve_estimators(estimators)
     steps = (
         _check_steps(horizon, "horizon") if horizon is not None else (spec.m if spec.m > 1 else 12)
@@ -520,6 +522,22 @@ def _likelihood_profiles(
             k: dict(estimates[k].params) for k in profiles
         }
     return profiles, grid
+
+
+def _check_not_constant(series: PreparedSeries, spec: ModelSpec) -> None:
+    """Refuse a series that is constant after the transform and differencing.
+
+    Its innovation variance is zero, so no likelihood exists; the libraries then fit
+    silently degenerate models (statsforecast: zero-width intervals, no warning).
+    """
+    w = difference(series.transformed(spec), spec)
+    if w.size and float(np.ptp(w)) == 0.0:
+        what = "the series" if spec.lost_to_differencing == 0 else "the differenced series"
+        raise SeriesError(
+            f"{what.capitalize()} of '{series.name}' is constant ({w[0]!r} throughout), so "
+            f"{spec} has nothing to estimate (its innovation variance would be zero). Check "
+            "the data, or use fewer differences."
+        )
 
 
 def _check_steps(value: Any, what: str) -> int:

@@ -199,9 +199,13 @@ def test_bad_input_fails_before_fitting() -> None:
     with pytest.raises(fa.SeriesError, match="needs at least"):
         fa.audit(np.arange(10.0), "ARIMA(0,1,1)x(0,1,1)12")
     with pytest.raises(fa.EstimatorError, match="known estimators"):
-        fa.audit(np.arange(60.0), "ARIMA(1,1,0)", estimators=["no-such-estimator"])
+        fa.audit(_ar1(60), "ARIMA(1,1,0)", estimators=["no-such-estimator"])
+    with pytest.raises(fa.SeriesError, match="is constant"):
+        fa.audit(np.full(60, 3.0), "ARIMA(1,0,0) +mean")
+    with pytest.raises(fa.SeriesError, match=r"differenced series .* is constant"):
+        fa.audit(np.arange(60.0), "ARIMA(0,1,1)")  # a straight line: w constant
     with pytest.raises(fa.ToleranceError):
-        fa.audit(np.arange(60.0), "ARIMA(1,1,0)", tolerances={"loglike_atol": -1})
+        fa.audit(_ar1(60), "ARIMA(1,1,0)", tolerances={"loglike_atol": -1})
 
 
 def test_summary_names_verdict_and_caution(airline_report: fa.AuditReport) -> None:
