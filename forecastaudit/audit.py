@@ -420,7 +420,9 @@ def audit(
 
     holdout_result = None
     if holdout:
-        holdout_result = _run_holdout(series, spec, keys, holdout, origins, level_tuple)
+        holdout_result = _run_holdout(
+            series, spec, keys, holdout, origins, level_tuple, progress=progress
+        )
         for key, reason in holdout_result.failures.items():
             findings.append(Finding("holdout-failure", "warn", key, "holdout", reason))
     search_result = None
@@ -588,6 +590,8 @@ def _run_holdout(
     horizon: int,
     origins: int,
     levels: tuple[float, ...],
+    *,
+    progress: bool = False,
 ) -> HoldoutResult:
     from . import reference as _reference
 
@@ -600,5 +604,13 @@ def _run_holdout(
         return _forecast_at_reference(train_t, spec, params, steps, levels)
 
     return run_holdout(
-        series.values, spec, keys, horizon, origins, levels, reference_forecaster, REFERENCE_KEY
+        series.values,
+        spec,
+        keys,
+        horizon,
+        origins,
+        levels,
+        reference_forecaster,
+        REFERENCE_KEY,
+        progress=progress,
     )

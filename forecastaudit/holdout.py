@@ -311,6 +311,7 @@ def run_holdout(
     levels: tuple[float, ...],
     reference_forecaster: ReferenceForecaster | None = None,
     reference_key: str = "reference",
+    progress: bool = False,
 ) -> HoldoutResult:
     """Fit on the training part and forecast the held-out part, at each origin.
 
@@ -323,6 +324,8 @@ def run_holdout(
         The series on the original scale.
     reference_forecaster : callable, optional
         ``f(train_transformed, estimates, horizon) -> Forecast`` for the reference optimum.
+    progress : bool
+        Show a progress bar (tqdm) over the origins.
     """
     n = values.size
     starts = [n - horizon * (origins - i) for i in range(origins)]
@@ -332,7 +335,12 @@ def run_holdout(
     failures: dict[str, str] = {}
     from .series import prepare_series
 
-    for start in starts:
+    origins_iter: Sequence[int] = starts
+    if progress:
+        from tqdm.auto import tqdm
+
+        origins_iter = tqdm(starts, desc="holdout origins", unit="origin")
+    for start in origins_iter:
         train, test = values[:start], values[start : start + horizon]
         train_t = prepare_series(train, period=spec.period).transformed(spec)
         estimates: dict[str, Estimate] = {}
