@@ -434,7 +434,6 @@ def audit(
             spec.period,
             transform=spec.transform,
             estimators=keys,
-            tolerances=tol,
             name=series.name,
         )
         findings += search_result.findings

@@ -698,7 +698,6 @@ def audit_order_search(
     max_q: int = 2,
     max_P: int = 1,
     max_Q: int = 1,
-    tolerances: Tolerances | Mapping[str, float] | None = None,
     estimators: Iterable[str] | None = None,
     rerun_limit: float = RERUN_LIMIT,
     n_jobs: int | None = None,
@@ -721,8 +720,6 @@ def audit_order_search(
     max_p, max_q, max_P, max_Q : int
         Bounds of our exhaustive reference search (not of the libraries' searches). A
         search's choice outside them is fitted as well, so its rank is defined.
-    tolerances : Tolerances or mapping, optional
-        Used for the rule-of-thumb margins on the selected models.
     estimators : iterable of str, optional
         Fit adapters asked in the default-constant check (default all).
     rerun_limit : float
@@ -739,12 +736,6 @@ def audit_order_search(
     -------
     OrderSearchAudit
     """
-    tol = (
-        tolerances
-        if isinstance(tolerances, Tolerances)
-        else Tolerances.from_dict(dict(tolerances or {}))
-    )
-    del tol  # accepted for a uniform signature; the rule-of-thumb margins are fixed constants
     series = prepare_series(y, period=period, name=name)
     m = series.period if series.period and series.period > 1 else 1
     base_spec = ModelSpec(period=m if m > 1 else None, transform=transform)
