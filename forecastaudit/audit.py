@@ -13,7 +13,7 @@ import pandas as pd
 from .compare import REFERENCE_KEY, Rescore, diagnose, likelihood_table, parameter_table
 from .conventions import coefficient_names, difference, information_criteria, parameter_names
 from .errors import EstimatorError, SeriesError, SpecError
-from .estimators import Estimate, EstimatorAdapter, available_estimators, get_adapter
+from .estimators import Estimate, available_estimators, get_adapter
 from .estimators.base import Forecast
 from .findings import Finding
 from .holdout import (
@@ -408,9 +408,9 @@ def audit(
                         f"{key} could not forecast: {fc.reason}",
                     )
                 )
-    ref_fc = _forecast_at_reference(y_t, spec, reference.params, steps, level_tuple)
-    if ref_fc is not None:
-        transformed[REFERENCE_KEY] = ref_fc
+    transformed[REFERENCE_KEY] = _forecast_at_reference(
+        y_t, spec, reference.params, steps, level_tuple
+    )
     forecasts = {k: back_transform(fc, spec) for k, fc in transformed.items()}
     engines = {k: all_estimates[k].engine for k in forecasts}
     spread = spread_band(forecasts, engines, REFERENCE_KEY, max(level_tuple)) if forecasts else None
@@ -559,27 +559,26 @@ def _check_holdout(series: PreparedSeries, spec: ModelSpec, holdout: Any, origin
         )
 
 
-def _fixed_params_adapter() -> EstimatorAdapter | None:
-    for key in available_estimators():
-        adapter = get_adapter(key)
-        if adapter.capabilities.fixed_params and adapter.availability() is None:
-            return adapter
-    return None
-
-
 def _forecast_at_reference(
     y_t: Any, spec: ModelSpec, params: Mapping[str, float], steps: int, levels: tuple[float, ...]
-) -> Forecast | None:
-    """Forecast at the reference optimum through an adapter that filters at given parameters."""
-    adapter = _fixed_params_adapter()
-    if adapter is None:
-        return None
-    fc = adapter.forecast_at(y_t, spec, dict(params), steps, levels)
-    if not fc.ok:
-        return None
-    fc.key = REFERENCE_KEY
-    fc.interval_method = f"{fc.interval_method}; filtered at the reference optimum by {adapter.key}"
-    return fc
+) -> Forecast:
+    """Forecast at the reference optimum with the reference model's own predictor."""
+    from . import reference as _reference
+
+    fc = _reference.forecast(y_t, spec, params, steps, levels)
+    return Forecast(
+        key=REFERENCE_KEY,
+        status="ok",
+        steps=steps,
+        levels=levels,
+        mean=fc.mean,
+        lower=fc.lower,
+        upper=fc.upper,
+        se=fc.se,
+        interval_method=f"{fc.method}; at the reference optimum",
+        sigma2_used=fc.sigma2,
+        residuals=fc.residuals,
+    )
 
 
 def _run_holdout(

@@ -239,6 +239,7 @@ def residual_checks(
     rows = {}
     for key, resid in residuals.items():
         kept = np.asarray(resid, dtype=float)[lost:]
+        kept = kept[np.isfinite(kept)]  # a reference forecast may condition on fewer values
         test = ljung_box(kept, lags, model_df)
         rows[key] = {
             "lags": test.lags,

@@ -64,7 +64,7 @@ class Capabilities:
         Whether the library gives forecast intervals.
     fixed_params : bool
         Whether the adapter can filter and forecast at given canonical parameters (used to
-        forecast the reference optimum and to get its residuals).
+        check the reference predictor against a general-purpose Kalman filter).
     """
 
     mean_differences: frozenset[int] = frozenset()
