@@ -565,7 +565,7 @@ def _forecast_at_reference(
     """Forecast at the reference optimum with the reference model's own predictor."""
     from . import reference as _reference
 
-    fc = _reference.forecast(y_t, spec, params, steps, levels)
+    fc = _reference.best_linear_forecast(y_t, spec, params, steps, levels)
     return Forecast(
         key=REFERENCE_KEY,
         status="ok",

@@ -57,10 +57,10 @@ __all__ = [
     "StartResult",
     "ar_to_pacf",
     "arma_autocovariances",
+    "best_linear_forecast",
     "conditional_least_squares",
     "evaluate",
     "fit_reference",
-    "forecast",
     "from_unconstrained",
     "gaussian_loglike",
     "log_jacobian",
@@ -1337,7 +1337,7 @@ def _default_range(name: str, value: float, w: np.ndarray) -> tuple[float, float
 
 # ---------------------------------------------------------------------- forecasts
 #: Forecasts condition on at most this many of the latest differenced observations (the
-#: dense conditional covariance grows with its square); see :func:`forecast`.
+#: dense conditional covariance grows with its square); see :func:`best_linear_forecast`.
 FORECAST_CONDITION_MAX = 3000
 
 
@@ -1382,7 +1382,7 @@ def _differencing_polynomial(spec: ModelSpec) -> np.ndarray:
     return delta
 
 
-def forecast(
+def best_linear_forecast(
     y_transformed: Sequence[float] | np.ndarray,
     spec: ModelSpec,
     params: Mapping[str, float],

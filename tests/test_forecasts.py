@@ -187,7 +187,7 @@ def test_reference_predictor_matches_a_kalman_filter(
         y = 100 + np.cumsum(0.5 + rng.normal(size=200))
     adapter = get_adapter("statsmodels-sarimax")
     params = adapter.fit(y, spec).params
-    ours = reference.forecast(y, spec, params, 12, (95.0,))
+    ours = reference.best_linear_forecast(y, spec, params, 12, (95.0,))
     theirs = adapter.forecast_at(y, spec, params, 12, (95.0,))
     assert np.allclose(ours.mean, theirs.mean, rtol=1e-7, atol=1e-8)
     assert np.allclose(ours.se, theirs.se, rtol=1e-7)
