@@ -108,9 +108,13 @@ def polynomial_roots_modulus(poly: np.ndarray) -> np.ndarray:
     """Moduli of the roots of a lag polynomial (coefficients of B^0, B^1, ...).
 
     Stationarity (AR) and invertibility (MA) need every modulus above 1. A constant
-    polynomial has no roots and gives an empty array.
+    polynomial has no roots and gives an empty array. Trailing coefficients below the
+    smallest normal float are dropped: ``numpy.roots`` overflows on a subnormal leading
+    coefficient, and such a term moves no root that matters.
     """
-    trimmed = np.trim_zeros(np.asarray(poly, dtype=float), "b")
+    values = np.asarray(poly, dtype=float)
+    kept = np.flatnonzero(np.abs(values) >= np.finfo(float).tiny)
+    trimmed = values[: kept[-1] + 1] if kept.size else values[:0]
     if trimmed.size <= 1:
         return np.empty(0)
     # numpy.roots wants the highest power first.
