@@ -350,7 +350,8 @@ def audit(
     series = prepare_series(y, period=period, name=name)
     spec = _resolve_spec(spec, series.period)
     check_length(series, spec)
-    _check_not_constant(series, spec)
+    y_t = series.transformed(spec)
+    _check_not_constant(y_t, series.name, spec)
     keys = _resolve_estimators(estimators)
     steps = (
         _check_steps(horizon, "horizon") if horizon is not None else (spec.m if spec.m > 1 else 12)
@@ -358,7 +359,6 @@ def audit(
     level_tuple = _check_levels(levels)
     if holdout is not None:
         _check_holdout(series, spec, holdout, origins)
-    y_t = series.transformed(spec)
     n_w = len(series) - spec.lost_to_differencing
 
     iterator: Iterable[str] = keys
@@ -525,17 +525,17 @@ def _likelihood_profiles(
     return profiles, grid
 
 
-def _check_not_constant(series: PreparedSeries, spec: ModelSpec) -> None:
+def _check_not_constant(y_t: np.ndarray, name: str, spec: ModelSpec) -> None:
     """Refuse a series that is constant after the transform and differencing.
 
     Its innovation variance is zero, so no likelihood exists; the libraries then fit
     silently degenerate models (statsforecast: zero-width intervals, no warning).
     """
-    w = difference(series.transformed(spec), spec)
+    w = difference(y_t, spec)
     if w.size and float(np.ptp(w)) == 0.0:
         what = "the series" if spec.lost_to_differencing == 0 else "the differenced series"
         raise SeriesError(
-            f"{what.capitalize()} of '{series.name}' is constant ({w[0]!r} throughout), so "
+            f"{what.capitalize()} of '{name}' is constant ({w[0]!r} throughout), so "
             f"{spec} has nothing to estimate (its innovation variance would be zero). Check "
             "the data, or use fewer differences."
         )
