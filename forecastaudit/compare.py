@@ -449,7 +449,7 @@ def diagnose(
                     {"gap": rescore.gap, "differences": differences},
                 )
             )
-        else:
+        elif not e.fitted_model:  # a different model is not agreement, whatever its values
             agreeing_engines.add(e.engine)
     if reference is not None:
         findings += _reference_findings(spec, reference, rescores, standard_errors, tol)

@@ -143,7 +143,10 @@ def test_extra_terms_are_a_different_model():
     )
     estimates = {"a": _estimate("a", "engine-1", BEST), "b": e}
     rescores = {k: Rescore(244.70, 244.70, 0.0) for k in estimates}
-    assert ("different-model", "fail") in _kinds(_run(estimates, rescores), "b")
+    findings = _run(estimates, rescores)
+    assert ("different-model", "fail") in _kinds(findings, "b")
+    count = next(f for f in findings if f.kind == "engine-count")
+    assert count.values["agreeing"] == ["engine-1"]
 
 
 def test_status_and_event_findings():
