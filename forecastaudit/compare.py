@@ -109,7 +109,9 @@ def _boundary_findings(
             )
         differenced = spec.d if factor == "ma" else spec.D if factor == "sma" else 0
         near_one = roots[(np.abs(roots - 1.0) < 2 * tol.root_margin + 0.03)]
-        if differenced and near_one.size:
+        # Over-differencing is a property of the model and the data: said once, of the
+        # reference optimum, not again for every estimate near it.
+        if differenced and near_one.size and not outside_only:
             findings.append(
                 Finding(
                     kind="possible-overdifferencing",

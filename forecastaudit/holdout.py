@@ -351,7 +351,9 @@ def run_holdout(
             e = adapter.fit(train_t, spec)
             estimates[key] = e
             if not e.ok:
-                failures.setdefault(key, f"fit {e.status} at origin {start}: {e.reason}")
+                # Unavailable and unsupported estimators are reported once, by the main fit.
+                if e.status == "failed":
+                    failures.setdefault(key, f"fit failed at origin {start}: {e.reason}")
                 continue
             fc = adapter.forecast(e, horizon, levels)
             if not fc.ok:
