@@ -10,7 +10,14 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from .compare import REFERENCE_KEY, Rescore, diagnose, likelihood_table, parameter_table
+from .compare import (
+    REFERENCE_KEY,
+    Rescore,
+    canonical_criteria,
+    diagnose,
+    likelihood_table,
+    parameter_table,
+)
 from .conventions import coefficient_names, difference, information_criteria, parameter_names
 from .errors import EstimatorError, SeriesError, SpecError
 from .estimators import Estimate, available_estimators, get_adapter
@@ -441,7 +448,7 @@ def audit(
     findings.sort(key=lambda f: order[f.severity])
     for key, e in all_estimates.items():
         if key in rescores and e.ok and e.n_w:
-            e.criteria = information_criteria(rescores[key].loglike, e.k or 0, e.n_w)
+            e.criteria = canonical_criteria(e, rescores[key])
     return AuditReport(
         spec=spec,
         series=series,

@@ -45,6 +45,14 @@ class Rescore:
     gap: float
 
 
+def canonical_criteria(e: Estimate, rescore: Rescore | None) -> dict[str, float]:
+    """AIC, AICc and BIC of an estimate on the canonical definition: the reference
+    log-likelihood at its parameters, k = coefficients + 1, n = n_w (empty without them)."""
+    if rescore is None or not e.n_w:
+        return {}
+    return information_criteria(rescore.loglike, e.k or 0, e.n_w)
+
+
 # ---------------------------------------------------------------------- roots
 def _factor_roots(coefs: list[float], sign: float) -> np.ndarray:
     """Roots (in the factor's own variable) of 1 + sign*(c1 z + c2 z^2 + ...)."""
@@ -165,9 +173,7 @@ def likelihood_table(
     rows = {}
     for key, e in estimates.items():
         r = rescores.get(key)
-        canonical = (
-            information_criteria(r.loglike, e.k or 0, e.n_w or 0) if r is not None and e.n_w else {}
-        )
+        canonical = canonical_criteria(e, r)
         rows[key] = {
             "status": e.status,
             "loglike_native": e.loglike_native,
@@ -301,7 +307,7 @@ def _definition_findings(e: Estimate, rescore: Rescore) -> list[Finding]:
                 {"native": e.loglike_native, "reference": rescore.loglike, "difference": diff},
             )
         )
-    canonical = information_criteria(rescore.loglike, e.k or 0, e.n_w or 0)
+    canonical = canonical_criteria(e, rescore)
     differing = {
         name: (e.criteria_native[name], canonical[name])
         for name in ("aic", "aicc", "bic")
