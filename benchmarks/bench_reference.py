@@ -38,8 +38,9 @@ import statsmodels  # noqa: E402
 from scipy.signal import lfilter  # noqa: E402
 from statsmodels.tsa.statespace.sarimax import SARIMAX  # noqa: E402
 
-from forecastaudit import ModelSpec, __version__  # noqa: E402
-from forecastaudit.reference import DENSE_THRESHOLD, evaluate  # noqa: E402
+from forecastaudit import ModelSpec  # noqa: E402
+from forecastaudit._version import __version__  # noqa: E402
+from forecastaudit.reference.likelihood import DENSE_THRESHOLD, evaluate  # noqa: E402
 
 TARGET_RATIO = 0.5
 LENGTHS = (130, 500, 2000)

@@ -3,7 +3,7 @@
 On the natural log of the airline passengers series (``sktime.datasets.load_airline()``,
 period 12), times in the same run (1) pmdarima's ``auto_arima`` with its own defaults
 (stepwise, as its users run it) and (2) our exhaustive search under the reference AICc
-(:func:`forecastaudit.selection.exhaustive_reference_search`) within the differencing
+(:func:`forecastaudit.search.exhaustive_reference_search`) within the differencing
 choices pmdarima and statsforecast make on this series, ``p, q <= 2``, ``P, Q <= 1``, with
 and without a constant where d + D <= 1. The ratio ours / pmdarima is reported with
 whether it meets the 0.5 target, and how many worker processes our search used.
@@ -32,9 +32,9 @@ from pathlib import Path  # noqa: E402
 
 import numpy as np  # noqa: E402
 
-from forecastaudit import __version__  # noqa: E402
-from forecastaudit.estimators.search_base import get_search  # noqa: E402
-from forecastaudit.selection import exhaustive_reference_search  # noqa: E402
+from forecastaudit._version import __version__  # noqa: E402
+from forecastaudit.adapters.registry import get_search  # noqa: E402
+from forecastaudit.search.exhaustive import exhaustive_reference_search  # noqa: E402
 
 TARGET_RATIO = 0.5
 RESULTS = Path(__file__).resolve().parent / "results" / "selection.json"

@@ -14,7 +14,7 @@ from typing import Any
 
 import pandas as pd
 
-from .errors import ForecastAuditError, SeriesError
+from forecastaudit.errors import ForecastAuditError, SeriesError
 
 EXIT_PASS = 0
 EXIT_FINDINGS = 1
@@ -101,7 +101,7 @@ def read_series(path: str | Path, column: str | None, date_column: str | None = 
 
 
 def _write_outputs(report: Any, out: Path) -> list[Path]:
-    from .record import write_text_atomic
+    from forecastaudit.files import write_text_atomic
 
     # Render everything first, so a rendering error leaves no partial set of files.
     texts = {
@@ -126,8 +126,8 @@ def _demo_exit(code: int) -> int:
 
 
 def _cmd_demo(args: argparse.Namespace) -> int:
-    from .audit import audit
-    from .demo import DEMO_SPEC, load_demo
+    from forecastaudit.demo import DEMO_SPEC, load_demo
+    from forecastaudit.pipeline import audit
 
     series = load_demo()
     print(
@@ -139,8 +139,8 @@ def _cmd_demo(args: argparse.Namespace) -> int:
 
 
 def _cmd_audit(args: argparse.Namespace) -> int:
-    from .audit import audit
-    from .spec import ModelSpec
+    from forecastaudit.pipeline import audit
+    from forecastaudit.spec import ModelSpec
 
     spec = ModelSpec.parse(args.model)  # a bad model text is reported before the data is read
     series = read_series(args.data, args.column, args.date_column)
@@ -162,9 +162,10 @@ def _cmd_audit(args: argparse.Namespace) -> int:
 
 
 def _cmd_compare_models(args: argparse.Namespace) -> int:
-    from .record import dumps, write_text_atomic
-    from .selection import compare_models
-    from .spec import ModelSpec
+    from forecastaudit.files import write_text_atomic
+    from forecastaudit.model_choice import compare_models
+    from forecastaudit.record.document import dumps
+    from forecastaudit.spec import ModelSpec
 
     specs = [ModelSpec.parse(text) for text in args.model]
     if len(specs) < 2:
@@ -186,8 +187,9 @@ def _cmd_compare_models(args: argparse.Namespace) -> int:
 
 
 def _cmd_drift(args: argparse.Namespace) -> int:
-    from .drift import compare_records
-    from .record import dumps, write_text_atomic
+    from forecastaudit.files import write_text_atomic
+    from forecastaudit.record.changes import compare_records
+    from forecastaudit.record.document import dumps
 
     drift = compare_records(args.old, args.new)
     print(drift)
@@ -197,7 +199,7 @@ def _cmd_drift(args: argparse.Namespace) -> int:
 
 
 def _cmd_estimators(args: argparse.Namespace) -> int:
-    from .estimators import available_estimators, get_adapter
+    from forecastaudit.adapters.registry import available_estimators, get_adapter
 
     for key in available_estimators():
         adapter = get_adapter(key)

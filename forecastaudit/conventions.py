@@ -19,7 +19,7 @@ from collections.abc import Mapping, Sequence
 
 import numpy as np
 
-from .spec import ModelSpec
+from forecastaudit.spec import ModelSpec
 
 __all__ = [
     "ar_polynomial",

@@ -19,7 +19,7 @@ from importlib import resources
 import numpy as np
 import pandas as pd
 
-from .spec import ModelSpec
+from forecastaudit.spec import ModelSpec
 
 __all__ = ["DEMO_FILE", "DEMO_SPEC", "generate_demo_series", "load_demo"]
 

@@ -7,7 +7,7 @@ Use the ``model_audit`` fixture::
     def test_demand_model(model_audit):
         model_audit(series, "ARIMA(0,1,1)x(0,1,1)12 +log", name="demand")
 
-The call runs :func:`forecastaudit.audit`, fails the test with a findings table when any
+The call runs :func:`forecastaudit.pipeline`, fails the test with a findings table when any
 finding is beyond tolerance, and compares the record with the stored baseline
 ``<baseline folder>/<name>.json``: a missing baseline fails (unless regeneration is asked
 for), a drifted one fails with the drift table. Baselines are written atomically.
@@ -119,15 +119,16 @@ def model_audit(request: pytest.FixtureRequest) -> Callable[..., Any]:
     """Run an audit, fail on findings beyond tolerance, and check it against its baseline.
 
     Returns a function ``model_audit(y, spec, *, name=None, baseline=True, **audit_kwargs)``
-    that returns the :class:`forecastaudit.AuditReport`. ``name`` names the baseline file
+    that returns the :class:`forecastaudit.AuditResult`. ``name`` names the baseline file
     (default: the test's name); ``baseline=False`` skips the baseline check. Keyword
-    arguments go to :func:`forecastaudit.audit`; ``estimators`` and ``tolerances`` default
+    arguments go to :func:`forecastaudit.pipeline`; ``estimators`` and ``tolerances`` default
     to the plugin's settings.
     """
-    from .audit import audit
-    from .drift import compare_records
-    from .record import load_record, write_text_atomic
-    from .testing import findings_table
+    from forecastaudit.files import write_text_atomic
+    from forecastaudit.pipeline import audit
+    from forecastaudit.record.changes import compare_records
+    from forecastaudit.record.document import load_record
+    from forecastaudit.testing import findings_table
 
     settings = _Settings(request.config)
 

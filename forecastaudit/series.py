@@ -16,8 +16,8 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from .errors import SeriesError
-from .spec import ModelSpec
+from forecastaudit.errors import SeriesError
+from forecastaudit.spec import ModelSpec
 
 __all__ = ["PreparedSeries", "period_from_frequency", "prepare_series"]
 

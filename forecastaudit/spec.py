@@ -17,7 +17,7 @@ from typing import Any
 
 import numpy as np
 
-from .errors import SpecError
+from forecastaudit.errors import SpecError
 
 __all__ = ["ModelSpec"]
 
@@ -121,7 +121,7 @@ class ModelSpec:
     period : int, optional
         The seasonal period m (12 for monthly data with a yearly cycle). Required when any
         seasonal term is present; may be given without seasonal terms (it is then used only
-        for seasonal-naive scaling of accuracy measures). When None, :func:`forecastaudit.audit`
+        for seasonal-naive scaling of accuracy measures). When None, :func:`forecastaudit.pipeline`
         takes it from the series' frequency.
     mean : bool
         Estimate ``mu``, the mean of the differenced series. With no differencing it is the

@@ -12,9 +12,9 @@ from typing import Any
 
 import numpy as np
 
-from .audit import AuditReport
-from .drift import RecordDrift, compare_records
-from .tolerances import Tolerances
+from forecastaudit.diagnosis.tolerances import Tolerances
+from forecastaudit.record.changes import RecordDrift, compare_records
+from forecastaudit.result import AuditResult
 
 __all__ = [
     "assert_audit_passes",
@@ -25,7 +25,7 @@ __all__ = [
 ]
 
 
-def findings_table(report: AuditReport, severities: Iterable[str] = ("fail", "warn")) -> str:
+def findings_table(report: AuditResult, severities: Iterable[str] = ("fail", "warn")) -> str:
     """The findings of the given severities as an aligned plain-text table."""
     wanted = set(severities)
     rows = [f for f in report.findings if f.severity in wanted]
@@ -41,7 +41,7 @@ def findings_table(report: AuditReport, severities: Iterable[str] = ("fail", "wa
     return "\n".join(lines)
 
 
-def assert_audit_passes(report: AuditReport) -> None:
+def assert_audit_passes(report: AuditResult) -> None:
     """Fail unless the audit's verdict is pass; the message lists fail and warn findings."""
     if not report.passed:
         raise AssertionError(
@@ -54,7 +54,7 @@ def _close(actual: float, expected: float, rtol: float, atol: float) -> bool:
 
 
 def assert_parameters_close(
-    report: AuditReport,
+    report: AuditResult,
     expected: Mapping[str, float],
     *,
     rtol: float = 1e-7,
@@ -89,7 +89,7 @@ def assert_parameters_close(
 
 
 def assert_estimators_agree(
-    report: AuditReport,
+    report: AuditResult,
     estimators: Iterable[str] | None = None,
     *,
     rtol: float = 0.0,
@@ -120,11 +120,11 @@ def assert_estimators_agree(
 
 def assert_no_drift(
     old: dict[str, Any] | str | os.PathLike[str],
-    new: dict[str, Any] | str | os.PathLike[str] | AuditReport,
+    new: dict[str, Any] | str | os.PathLike[str] | AuditResult,
     tolerances: Tolerances | None = None,
 ) -> RecordDrift:
     """Fail when ``new`` drifted from ``old`` beyond tolerance; return the drift otherwise."""
-    if isinstance(new, AuditReport):
+    if isinstance(new, AuditResult):
         new = new.to_dict()
     drift = compare_records(old, new, tolerances)
     if not drift.passed:

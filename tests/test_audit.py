@@ -13,8 +13,8 @@ import pandas as pd
 import pytest
 
 import forecastaudit as fa
+from forecastaudit.adapters.registry import get_adapter
 from forecastaudit.conventions import box_jenkins_ma_to_canonical
-from forecastaudit.estimators import get_adapter
 
 STATESPACE = ["statsmodels-sarimax", "statsmodels-arima", "pmdarima", "sktime"]
 AIRLINE = fa.ModelSpec(order=(0, 1, 1), seasonal=(0, 1, 1), period=12, transform="log")
@@ -28,11 +28,11 @@ def airline() -> pd.Series:
 
 
 @pytest.fixture(scope="module")
-def airline_report(airline: pd.Series) -> fa.AuditReport:
+def airline_report(airline: pd.Series) -> fa.AuditResult:
     return fa.audit(airline, AIRLINE)
 
 
-def test_statsmodels_engine_estimators_agree(airline_report: fa.AuditReport) -> None:
+def test_statsmodels_engine_estimators_agree(airline_report: fa.AuditResult) -> None:
     # Four wrappers of one engine (statsmodels SARIMAX) fit the same likelihood with the
     # same optimiser defaults: they must agree to 1e-3 (issue requirement).
     table = airline_report.parameters[STATESPACE]
@@ -40,7 +40,7 @@ def test_statsmodels_engine_estimators_agree(airline_report: fa.AuditReport) -> 
     assert (spread <= 1e-3).all(), spread
 
 
-def test_box_jenkins_published_values_recovered(airline_report: fa.AuditReport) -> None:
+def test_box_jenkins_published_values_recovered(airline_report: fa.AuditResult) -> None:
     # Box, Jenkins & Reinsel, Time Series Analysis: Forecasting and Control, ch. 9, Series G,
     # log airline ARIMA(0,1,1)x(0,1,1)12: theta = 0.40, Theta = 0.61 in the book's minus-sign
     # MA convention (recalled from memory, high confidence). The book minimises the sum of
@@ -54,7 +54,7 @@ def test_box_jenkins_published_values_recovered(airline_report: fa.AuditReport) 
 
 
 def test_reference_optimum_is_best_and_short_estimates_are_named(
-    airline_report: fa.AuditReport,
+    airline_report: fa.AuditResult,
 ) -> None:
     table = airline_report.likelihoods
     best = table.loc["reference", "profiled_reference"]
@@ -66,7 +66,7 @@ def test_reference_optimum_is_best_and_short_estimates_are_named(
     assert named == short
 
 
-def test_log_likelihood_definitions(airline_report: fa.AuditReport) -> None:
+def test_log_likelihood_definitions(airline_report: fa.AuditResult) -> None:
     # statsmodels' default (approximate diffuse prior, 13 observations burned) equals the
     # exact likelihood of the differenced series to ~1e-6 at the same parameters
     # (estimator-facts.md: 244.6964851 against 244.6964844).
@@ -76,7 +76,7 @@ def test_log_likelihood_definitions(airline_report: fa.AuditReport) -> None:
     assert row["k"] == 3  # two coefficients plus sigma2
 
 
-def test_pmdarima_aicc_counts_len_y(airline_report: fa.AuditReport) -> None:
+def test_pmdarima_aicc_counts_len_y(airline_report: fa.AuditResult) -> None:
     # pmdarima's aicc() uses n = len(y) = 144 (estimator-facts.md: -483.2215 against
     # statsmodels' -483.2040 with n = 131); the audit explains it as a definition difference.
     e = airline_report.estimates["pmdarima"]
@@ -91,7 +91,7 @@ def test_pmdarima_aicc_counts_len_y(airline_report: fa.AuditReport) -> None:
     assert explained
 
 
-def test_no_constant_added_silently(airline_report: fa.AuditReport) -> None:
+def test_no_constant_added_silently(airline_report: fa.AuditResult) -> None:
     for key in ("pmdarima", "sktime"):
         e = airline_report.estimates[key]
         assert e.fitted_model is None
@@ -105,7 +105,7 @@ def test_no_constant_added_silently(airline_report: fa.AuditReport) -> None:
         assert found and found[0].values["default"] is True
 
 
-def test_record_has_provenance(airline_report: fa.AuditReport, airline: pd.Series) -> None:
+def test_record_has_provenance(airline_report: fa.AuditResult, airline: pd.Series) -> None:
     record = json.loads(airline_report.to_json())
     assert record["schema_version"] == "1.0"
     prov = record["provenance"]
@@ -208,7 +208,7 @@ def test_bad_input_fails_before_fitting() -> None:
         fa.audit(_ar1(60), "ARIMA(1,1,0)", tolerances={"loglike_atol": -1})
 
 
-def test_summary_names_verdict_and_caution(airline_report: fa.AuditReport) -> None:
+def test_summary_names_verdict_and_caution(airline_report: fa.AuditResult) -> None:
     text = str(airline_report)
     assert airline_report.verdict.upper() in text
     assert "not proof" in text

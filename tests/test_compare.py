@@ -11,10 +11,12 @@ import math
 import numpy as np
 import pytest
 
-from forecastaudit.compare import Rescore, diagnose, polynomial_roots
-from forecastaudit.estimators.base import CapturedWarning, Estimate
+from forecastaudit.diagnosis.diagnose import diagnose
+from forecastaudit.diagnosis.rescore import Rescore
+from forecastaudit.diagnosis.tolerances import Tolerances
+from forecastaudit.estimate import CapturedWarning, Estimate
+from forecastaudit.layout import polynomial_roots
 from forecastaudit.spec import ModelSpec
-from forecastaudit.tolerances import Tolerances
 
 SPEC = ModelSpec(order=(0, 1, 1), seasonal=(0, 1, 1), period=12)
 BEST = {"ma_lag1": -0.40, "sma_lag12": -0.56, "sigma2": 0.00135}

@@ -20,6 +20,8 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from forecastaudit import ModelSpec
+from forecastaudit.adapters._statespace import canonical_coefficients
+from forecastaudit.adapters.registry import get_adapter
 from forecastaudit.conventions import (
     ar_polynomial,
     box_jenkins_ma_to_canonical,
@@ -36,8 +38,6 @@ from forecastaudit.conventions import (
     polynomial_roots_modulus,
     trend_scale,
 )
-from forecastaudit.estimators import get_adapter
-from forecastaudit.estimators._statespace import canonical_coefficients
 
 # ---------------------------------------------------------------------- names
 
@@ -276,7 +276,7 @@ def test_box_jenkins_ma_sign():
 # The round trip Box-Jenkins -> canonical -> native -> canonical -> Box-Jenkins must be the
 # identity for every native convention:
 #   * statsmodels SARIMAX names (ar.L1, ma.S.L12, intercept c = mu phi(1) Phi(1)), read back
-#     by forecastaudit.estimators._statespace.canonical_coefficients;
+#     by forecastaudit.adapters._statespace.canonical_coefficients;
 #   * statsmodels tsa.arima names (const = mu without differencing; x1 = coefficient of
 #     t^(d+D), mu = (d+D)! m^D x1), read back by the same function;
 #   * statsforecast names (ar1, sar1, ma1, sma1, intercept = mu, drift with mu = m^D drift).

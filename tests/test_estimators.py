@@ -15,14 +15,14 @@ import numpy as np
 import pytest
 
 from forecastaudit import ModelSpec
+from forecastaudit.adapters.registry import available_estimators, get_adapter
+from forecastaudit.adapters.statsforecast_arima import StatsforecastArima
 from forecastaudit.conventions import (
     box_jenkins_ma_to_canonical,
     information_criteria,
     parameter_names,
     trend_scale,
 )
-from forecastaudit.estimators import available_estimators, get_adapter
-from forecastaudit.estimators.statsforecast_arima import StatsforecastArima
 
 STATESPACE = ("statsmodels-sarimax", "statsmodels-arima", "pmdarima", "sktime")
 AIRLINE = ModelSpec((0, 1, 1), (0, 1, 1), 12)

@@ -10,10 +10,10 @@ import pandas as pd
 import pytest
 
 import forecastaudit as fa
-from forecastaudit.estimators import get_adapter
-from forecastaudit.estimators.base import Estimate, Forecast
-from forecastaudit.holdout import back_transform, forecast_findings
-from forecastaudit.tolerances import Tolerances
+from forecastaudit.adapters.registry import get_adapter
+from forecastaudit.diagnosis.forecasts import back_transform, forecast_findings
+from forecastaudit.diagnosis.tolerances import Tolerances
+from forecastaudit.estimate import Estimate, Forecast
 
 STATESPACE = ["statsmodels-sarimax", "statsmodels-arima", "pmdarima", "sktime"]
 
@@ -26,12 +26,12 @@ def airline() -> pd.Series:
 
 
 @pytest.fixture(scope="module")
-def airline_holdout(airline: pd.Series) -> fa.AuditReport:
+def airline_holdout(airline: pd.Series) -> fa.AuditResult:
     spec = fa.ModelSpec(order=(0, 1, 1), seasonal=(0, 1, 1), period=12, transform="log")
     return fa.audit(airline, spec, holdout=12, origins=2)
 
 
-def test_statsmodels_engine_forecasts_agree(airline_holdout: fa.AuditReport) -> None:
+def test_statsmodels_engine_forecasts_agree(airline_holdout: fa.AuditResult) -> None:
     # Same engine and parameters agreeing to ~1e-7: forecasts must agree to 1e-6 (issue).
     ref = airline_holdout.forecasts["statsmodels-sarimax"]
     for key in STATESPACE[1:]:
@@ -42,7 +42,7 @@ def test_statsmodels_engine_forecasts_agree(airline_holdout: fa.AuditReport) -> 
 
 
 def test_log_back_transform_gives_median_and_lognormal_mean(
-    airline_holdout: fa.AuditReport,
+    airline_holdout: fa.AuditResult,
 ) -> None:
     # Closed form: if log Y ~ N(m, s^2), median(Y) = exp(m), E(Y) = exp(m + s^2 / 2).
     transformed = airline_holdout.forecasts_transformed["statsmodels-sarimax"]
@@ -54,7 +54,7 @@ def test_log_back_transform_gives_median_and_lognormal_mean(
 
 
 def test_holdout_runs_for_every_estimator_and_is_recorded(
-    airline_holdout: fa.AuditReport,
+    airline_holdout: fa.AuditResult,
 ) -> None:
     accuracy = airline_holdout.holdout.accuracy
     assert set(accuracy.index) == {*STATESPACE, "statsforecast", "reference"}
@@ -74,14 +74,14 @@ def test_holdout_on_the_demo_series() -> None:
     assert record["holdout"]["horizon"] == 12
 
 
-def test_spread_band_counts_each_engine_once(airline_holdout: fa.AuditReport) -> None:
+def test_spread_band_counts_each_engine_once(airline_holdout: fa.AuditResult) -> None:
     spread = airline_holdout.spread
     assert spread.attrs["engines"] == ["statsforecast-arima", "statsmodels-statespace"]
     assert (spread["highest"] >= spread["lowest"]).all()
     assert len(spread) == 12
 
 
-def test_residual_tests_use_model_degrees_of_freedom(airline_holdout: fa.AuditReport) -> None:
+def test_residual_tests_use_model_degrees_of_freedom(airline_holdout: fa.AuditResult) -> None:
     # Ljung & Box (1978): df = lags - (p + q + P + Q) = 24 - 2 at m = 12 (2m lags, common
     # practice, no source), on the 131 residuals after the 13 start-up values.
     table = airline_holdout.residual_tests

@@ -12,7 +12,7 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from forecastaudit.metrics import (
+from forecastaudit.diagnosis.metrics import (
     diebold_mariano,
     interval_score,
     ljung_box,

@@ -67,8 +67,8 @@ def test_injected_disagreement_fails_with_findings(pytester: pytest.Pytester) ->
     )
     pytester.makeconftest(
         """
-from forecastaudit.estimators.base import register_estimator
-from forecastaudit.estimators.statsmodels_sarimax import StatsmodelsSarimax
+from forecastaudit.adapters.registry import register_estimator
+from forecastaudit.adapters.statsmodels_sarimax import StatsmodelsSarimax
 
 @register_estimator
 class Shifted(StatsmodelsSarimax):

@@ -9,8 +9,9 @@ import numpy as np
 import pytest
 
 import forecastaudit as fa
-from forecastaudit.record import SCHEMA_VERSION, dumps, load_record, write_text_atomic
-from forecastaudit.tolerances import REASONS
+from forecastaudit.diagnosis.tolerances import REASONS
+from forecastaudit.files import write_text_atomic
+from forecastaudit.record.document import SCHEMA_VERSION, dumps, load_record
 
 
 def test_every_tolerance_has_a_reason() -> None:

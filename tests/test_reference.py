@@ -26,25 +26,24 @@ from forecastaudit.conventions import (
     parameter_names,
     polynomial_roots_modulus,
 )
-from forecastaudit.reference import (
-    CLS_LABEL,
-    ReferenceFit,
+from forecastaudit.reference.fit import CLS_LABEL, ReferenceFit, fit_reference
+from forecastaudit.reference.likelihood import (
     ReferenceLikelihood,
-    ar_to_pacf,
     arma_autocovariances,
     evaluate,
-    fit_reference,
-    from_unconstrained,
     gaussian_loglike,
     log_jacobian,
+)
+from forecastaudit.reference.parameterisation import (
+    ar_to_pacf,
+    from_unconstrained,
     pacf_to_ar,
     pacf_to_unconstrained,
-    profile_grid,
-    profile_line,
     pull_inside,
     to_unconstrained,
     unconstrained_to_pacf,
 )
+from forecastaudit.reference.profiles import profile_grid, profile_line
 
 AIRLINE = ModelSpec((0, 1, 1), (0, 1, 1), 12)
 

@@ -19,35 +19,35 @@ import numpy as np
 import pytest
 
 import forecastaudit as fa
-from forecastaudit.audit import CAUTION
-from forecastaudit.findings import Finding
+from forecastaudit.diagnosis.findings import Finding
 from forecastaudit.report import content, plots, render_compact_html, render_html
 from forecastaudit.report.html import SECTIONS
 from forecastaudit.report.markdown import escape_markdown, render_markdown
+from forecastaudit.result import CAUTION
 
 HOSTILE = '<script>alert(1)</script>&"'
 CHROMIUM = "/usr/bin/chromium"
 
 
 @pytest.fixture(scope="module")
-def report() -> fa.AuditReport:
+def report() -> fa.AuditResult:
     return fa.audit(
         fa.load_demo(), fa.DEMO_SPEC, estimators=["statsmodels-sarimax", "statsforecast"]
     )
 
 
 @pytest.fixture(scope="module")
-def html(report: fa.AuditReport) -> str:
+def html(report: fa.AuditResult) -> str:
     return render_html(report)
 
 
 @pytest.fixture(scope="module")
-def markdown(report: fa.AuditReport) -> str:
+def markdown(report: fa.AuditResult) -> str:
     return render_markdown(report)
 
 
 @pytest.fixture(scope="module")
-def hostile(report: fa.AuditReport) -> fa.AuditReport:
+def hostile(report: fa.AuditResult) -> fa.AuditResult:
     """The same audit with a series name and a finding that try to inject markup."""
     extra = Finding(
         "reference-fit",
@@ -68,7 +68,7 @@ def _escaped(text: str) -> str:
 
 
 # ---------------------------------------------------------------------- HTML
-def test_html_opens_with_the_verdict(report: fa.AuditReport, html: str) -> None:
+def test_html_opens_with_the_verdict(report: fa.AuditResult, html: str) -> None:
     verdict = re.search(r'<section id="verdict".*?</section>', html, re.S)
     assert verdict is not None
     block = verdict.group(0)
@@ -85,7 +85,7 @@ def test_html_opens_with_the_verdict(report: fa.AuditReport, html: str) -> None:
     assert html.index('id="verdict"') < html.index('id="findings"') < html.index('id="parameters"')
 
 
-def test_html_carries_every_finding_with_its_explanation(report: fa.AuditReport, html: str) -> None:
+def test_html_carries_every_finding_with_its_explanation(report: fa.AuditResult, html: str) -> None:
     assert report.findings
     for finding in report.findings:
         assert _escaped(finding.message) in html
@@ -94,7 +94,7 @@ def test_html_carries_every_finding_with_its_explanation(report: fa.AuditReport,
         assert content.SEVERITY_LABELS[severity]["word"] in html
 
 
-def test_html_findings_are_grouped_most_severe_first(report: fa.AuditReport, html: str) -> None:
+def test_html_findings_are_grouped_most_severe_first(report: fa.AuditResult, html: str) -> None:
     positions = {
         s: html.find(f"<h3>{content.SEVERITY_LABELS[s]['heading']} (")
         for s in ("fail", "warn", "info")
@@ -125,7 +125,7 @@ def test_html_is_self_contained(html: str) -> None:
     assert "<style>" in html and "@media print" in html
 
 
-def test_html_tables(report: fa.AuditReport, html: str) -> None:
+def test_html_tables(report: fa.AuditResult, html: str) -> None:
     for table_id in ("parameters", "likelihoods", "estimators", "tolerances", "provenance"):
         assert f'id="table-{table_id}"' in html
     for name in report.parameters.index:
@@ -137,7 +137,7 @@ def test_html_tables(report: fa.AuditReport, html: str) -> None:
         assert name in html
 
 
-def test_sections_appear_only_with_data(report: fa.AuditReport, html: str) -> None:
+def test_sections_appear_only_with_data(report: fa.AuditResult, html: str) -> None:
     assert report.holdout is None
     assert 'id="holdout"' not in html
     bare = dataclasses.replace(report, spread=None, residual_tests=None, forecasts={})
@@ -153,7 +153,7 @@ def test_every_section_template_exists() -> None:
         assert (folder / section.template).is_file(), section.template
 
 
-def test_hostile_strings_are_escaped_everywhere(hostile: fa.AuditReport) -> None:
+def test_hostile_strings_are_escaped_everywhere(hostile: fa.AuditResult) -> None:
     for text in (render_html(hostile), render_compact_html(hostile)):
         assert "<script>alert" not in text
         assert "<b>col" not in text
@@ -164,7 +164,7 @@ def test_hostile_strings_are_escaped_everywhere(hostile: fa.AuditReport) -> None
 
 
 # ---------------------------------------------------------------------- compact view
-def test_compact_view(report: fa.AuditReport, html: str) -> None:
+def test_compact_view(report: fa.AuditResult, html: str) -> None:
     compact = report._repr_html_()
     assert compact == render_compact_html(report)
     assert report.verdict.upper() in compact
@@ -183,7 +183,7 @@ def test_compact_view(report: fa.AuditReport, html: str) -> None:
         assert _escaped(finding.message) not in compact
 
 
-def test_compact_view_without_serious_findings(report: fa.AuditReport) -> None:
+def test_compact_view_without_serious_findings(report: fa.AuditResult) -> None:
     quiet = dataclasses.replace(report, findings=report.findings_of("info"))
     compact = render_compact_html(quiet)
     assert "PASS" in compact
@@ -208,7 +208,7 @@ def _tables(text: str) -> list[list[str]]:
     return blocks
 
 
-def test_markdown_tables_are_well_formed(report: fa.AuditReport, markdown: str) -> None:
+def test_markdown_tables_are_well_formed(report: fa.AuditResult, markdown: str) -> None:
     tables = _tables(markdown)
     assert len(tables) >= 4  # parameters, likelihoods, estimators, tolerances
     for table in tables:
@@ -223,7 +223,7 @@ def test_markdown_tables_are_well_formed(report: fa.AuditReport, markdown: str) 
         assert f"| {name} |" in markdown
 
 
-def test_markdown_verdict_findings_and_caution(report: fa.AuditReport, markdown: str) -> None:
+def test_markdown_verdict_findings_and_caution(report: fa.AuditResult, markdown: str) -> None:
     assert markdown.startswith("## forecastaudit: ")
     assert f"**Verdict:** {content.VERDICT_LABELS[report.verdict]['symbol']}" in markdown
     assert report.verdict.upper() in markdown.splitlines()[0]
@@ -237,7 +237,7 @@ def test_markdown_verdict_findings_and_caution(report: fa.AuditReport, markdown:
     assert report.series.fingerprint in markdown
 
 
-def test_markdown_escapes_hostile_strings(hostile: fa.AuditReport) -> None:
+def test_markdown_escapes_hostile_strings(hostile: fa.AuditResult) -> None:
     text = render_markdown(hostile)
     assert "<script>" not in text and "<b>" not in text
     assert "&lt;script&gt;alert(1)&lt;/script&gt;&amp;" in text
@@ -265,7 +265,7 @@ def test_format_number() -> None:
     assert content.column_kind([0.0567, 8.2]) == "fixed4"
 
 
-def test_parameter_table_flags_values_beyond_tolerance(report: fa.AuditReport) -> None:
+def test_parameter_table_flags_values_beyond_tolerance(report: fa.AuditResult) -> None:
     params = report.parameters.copy()
     name = params.index[0]
     se = params.at[name, "reference_se"]
@@ -280,7 +280,7 @@ def test_parameter_table_flags_values_beyond_tolerance(report: fa.AuditReport) -
     assert any(content.FLAG_MARKS["beyond"][1] in note for note in table.all_notes)
 
 
-def test_likelihood_table_flags_the_gap(report: fa.AuditReport) -> None:
+def test_likelihood_table_flags_the_gap(report: fa.AuditResult) -> None:
     table = content.likelihood_table(report)
     gap_row = next(r for r in table.rows if r.header.startswith("gap to the best"))
     gaps = report.likelihoods["gap_to_best"]
@@ -290,7 +290,7 @@ def test_likelihood_table_flags_the_gap(report: fa.AuditReport) -> None:
 
 
 # ---------------------------------------------------------------------- plots
-def test_plots_are_png_with_alt_text_and_leave_no_state(report: fa.AuditReport) -> None:
+def test_plots_are_png_with_alt_text_and_leave_no_state(report: fa.AuditResult) -> None:
     import matplotlib
     import matplotlib.pyplot as plt
 
@@ -306,14 +306,14 @@ def test_plots_are_png_with_alt_text_and_leave_no_state(report: fa.AuditReport) 
     assert matplotlib.get_backend() == backend
 
 
-def test_parameter_plot_alt_names_every_parameter(report: fa.AuditReport) -> None:
+def test_parameter_plot_alt_names_every_parameter(report: fa.AuditResult) -> None:
     plot = plots.parameter_plot(report)
     assert plot is not None
     for name in report.parameters.index:
         assert name in plot.alt
 
 
-def test_series_plot_survives_mathtext_characters(report: fa.AuditReport) -> None:
+def test_series_plot_survives_mathtext_characters(report: fa.AuditResult) -> None:
     named = dataclasses.replace(report, series=dataclasses.replace(report.series, name="$x_1$ $"))
     assert plots.series_plot(named).png[:4] == b"\x89PNG"
 
@@ -326,7 +326,7 @@ def test_likelihood_profile_figure() -> None:
 
 
 # ---------------------------------------------------------------------- in a browser
-def test_page_loads_in_headless_chromium(report: fa.AuditReport, html: str) -> None:
+def test_page_loads_in_headless_chromium(report: fa.AuditResult, html: str) -> None:
     if shutil.which(CHROMIUM) is None:
         pytest.skip(
             f"{CHROMIUM} is not installed; the browser check of the HTML report did not run"

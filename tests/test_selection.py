@@ -19,20 +19,14 @@ import numpy as np
 import pytest
 
 import forecastaudit as fa
+from forecastaudit.adapters.registry import available_searches, get_search
+from forecastaudit.adapters.search_protocol import SearchAdapter
 from forecastaudit.conventions import information_criteria
 from forecastaudit.errors import EstimatorError
-from forecastaudit.estimators.search_base import (
-    SearchAdapter,
-    SearchSettings,
-    available_searches,
-    get_search,
-)
-from forecastaudit.selection import (
-    SUPPORT_BAND,
-    _advisories,
-    audit_order_search,
-    compare_models,
-)
+from forecastaudit.estimate import SearchSettings
+from forecastaudit.model_choice import compare_models
+from forecastaudit.search.exhaustive import SUPPORT_BAND
+from forecastaudit.search.order_search import _advisories, audit_order_search
 
 pytestmark = pytest.mark.slow
 
@@ -116,7 +110,7 @@ def test_regular_differencing_statistic_matches_statsmodels(log_airline_values):
     # General-purpose library: statsmodels' KPSS at pmdarima's lag count, on the same data.
     from statsmodels.tsa.stattools import kpss
 
-    from forecastaudit.estimators.search_pmdarima import differencing_tests
+    from forecastaudit.adapters.search_pmdarima import differencing_tests
 
     w = log_airline_values[12:] - log_airline_values[:-12]
     tests, _ = differencing_tests(

@@ -18,7 +18,7 @@ from forecastaudit.testing import (
 
 
 @pytest.fixture(scope="module")
-def report() -> fa.AuditReport:
+def report() -> fa.AuditResult:
     # Seeded AR(1) with mean 20 and phi 0.5: a model every estimator fits the same way.
     rng = np.random.default_rng(3)
     x = np.zeros(150)
@@ -29,12 +29,12 @@ def report() -> fa.AuditReport:
     )
 
 
-def test_passing_audit_passes(report: fa.AuditReport) -> None:
+def test_passing_audit_passes(report: fa.AuditResult) -> None:
     assert report.passed, findings_table(report)
     assert_audit_passes(report)
 
 
-def test_parameters_close_uses_numpy_semantics(report: fa.AuditReport) -> None:
+def test_parameters_close_uses_numpy_semantics(report: fa.AuditResult) -> None:
     ref = report.estimates["reference"].params
     assert_parameters_close(report, {"ar_lag1": ref["ar_lag1"]})
     # |a - b| <= atol + rtol |b|: within atol 0.01 of a value 0.005 away.
@@ -45,13 +45,13 @@ def test_parameters_close_uses_numpy_semantics(report: fa.AuditReport) -> None:
         assert_parameters_close(report, {"ma_lag1": 0.0})
 
 
-def test_estimators_agree(report: fa.AuditReport) -> None:
+def test_estimators_agree(report: fa.AuditResult) -> None:
     assert_estimators_agree(report, atol=0.01)
     with pytest.raises(AssertionError, match="disagree"):
         assert_estimators_agree(report, atol=0.0)
 
 
-def test_no_drift(report: fa.AuditReport) -> None:
+def test_no_drift(report: fa.AuditResult) -> None:
     record = report.to_dict()
     assert assert_no_drift(record, report).verdict == "no drift"
     moved = copy.deepcopy(record)

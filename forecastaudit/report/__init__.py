@@ -4,7 +4,7 @@ The renderers read what to say from :mod:`forecastaudit.report.content` and the 
 from :mod:`forecastaudit.report.plots`; they never compute audit results themselves.
 """
 
-from .html import render_compact_html, render_html
-from .markdown import render_markdown
+from forecastaudit.report.html import render_compact_html, render_html
+from forecastaudit.report.markdown import render_markdown
 
 __all__ = ["render_compact_html", "render_html", "render_markdown"]

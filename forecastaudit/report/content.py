@@ -15,11 +15,11 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 import pandas as pd
 
-from ..compare import REFERENCE_KEY
-from ..findings import KINDS, Finding
+from forecastaudit.diagnosis.findings import KINDS, Finding
+from forecastaudit.estimate import REFERENCE_KEY
 
 if TYPE_CHECKING:
-    from ..audit import AuditReport
+    from forecastaudit.result import AuditResult
 
 __all__ = [
     "FLAG_MARKS",
@@ -266,7 +266,7 @@ class Summary:
         )
 
 
-def summary(report: AuditReport) -> Summary:
+def summary(report: AuditResult) -> Summary:
     """The verdict block of a report."""
     labels = report.series.labels()
     counts = {s: len(report.findings_of(s)) for s in ("fail", "warn", "info")}
@@ -341,7 +341,7 @@ def _item(f: Finding) -> FindingItem:
 
 
 def finding_groups(
-    report: AuditReport,
+    report: AuditResult,
     limit: int | None = None,
     severities: tuple[str, ...] = ("fail", "warn", "info"),
 ) -> list[FindingGroup]:
@@ -378,7 +378,7 @@ def finding_groups(
 
 
 # ---------------------------------------------------------------------- the tables
-def parameter_table(report: AuditReport) -> Table:
+def parameter_table(report: AuditResult) -> Table:
     """Canonical parameters per estimator, the reference standard error and the tolerance.
 
     A value is flagged when it differs from the reference optimum by more than the stated
@@ -467,7 +467,7 @@ _LIKELIHOOD_ROWS: tuple[tuple[str, tuple[tuple[str, str, str], ...]], ...] = (
 )
 
 
-def likelihood_table(report: AuditReport) -> Table:
+def likelihood_table(report: AuditResult) -> Table:
     """Log-likelihoods, counts, criteria and sigma2 per estimator, native beside canonical.
 
     Quantities are rows and estimators columns, like the parameter table, so one
@@ -512,7 +512,7 @@ def likelihood_table(report: AuditReport) -> Table:
     )
 
 
-def estimator_table(report: AuditReport) -> Table:
+def estimator_table(report: AuditResult) -> Table:
     """Per estimator: status, package and version, engine, convergence, time, warnings."""
     rows = []
     for key, e in report.estimates.items():
@@ -554,7 +554,7 @@ def estimator_table(report: AuditReport) -> Table:
     )
 
 
-def tolerance_table(report: AuditReport) -> Table:
+def tolerance_table(report: AuditResult) -> Table:
     """Each tolerance with its value, its default and the reason for the default."""
     rows = []
     for name, item in report.tolerances.describe().items():
@@ -578,7 +578,7 @@ def tolerance_table(report: AuditReport) -> Table:
     )
 
 
-def provenance_table(report: AuditReport, provenance: Mapping[str, Any]) -> Table:
+def provenance_table(report: AuditResult, provenance: Mapping[str, Any]) -> Table:
     """Versions, platform and the data fingerprint, one fact per row."""
     data = provenance.get("data", {})
     facts = [
@@ -658,7 +658,7 @@ def frame_table(
     )
 
 
-def forecast_table(report: AuditReport) -> Table | None:
+def forecast_table(report: AuditResult) -> Table | None:
     """Per horizon, the spread of point forecasts across independent engines, or None."""
     spread = report.spread
     if spread is None or spread.empty:
@@ -698,7 +698,7 @@ def forecast_table(report: AuditReport) -> Table | None:
     )
 
 
-def residual_table(report: AuditReport) -> Table | None:
+def residual_table(report: AuditResult) -> Table | None:
     """Ljung-Box tests of each estimator's residuals, or None when there are none."""
     frame = report.residual_tests
     if frame is None or frame.empty:
@@ -754,7 +754,7 @@ _ORDER_SEARCH_TABLES = (
 )
 
 
-def order_search_tables(report: AuditReport) -> list[Table]:
+def order_search_tables(report: AuditResult) -> list[Table]:
     """The order-search audit's tables; empty when it did not run."""
     result = getattr(report, "order_search", None)
     if result is None:
@@ -791,7 +791,7 @@ def _kind(values: pd.Series) -> str:
     return "column"
 
 
-def holdout_tables(report: AuditReport) -> list[Table]:
+def holdout_tables(report: AuditResult) -> list[Table]:
     """Holdout accuracy per estimator and the pairwise comparisons; empty without a holdout."""
     result = report.holdout
     if result is None:

@@ -18,11 +18,11 @@ from typing import TYPE_CHECKING, Any
 
 import jinja2
 
-from . import content
-from .plots import Plot, report_plots
+from forecastaudit.report import content
+from forecastaudit.report.plots import Plot, report_plots
 
 if TYPE_CHECKING:
-    from ..audit import AuditReport
+    from forecastaudit.result import AuditResult
 
 __all__ = ["SECTIONS", "Section", "render_compact_html", "render_html"]
 
@@ -31,7 +31,7 @@ __all__ = ["SECTIONS", "Section", "render_compact_html", "render_html"]
 class _Shared:
     """What several sections use, computed once per rendering."""
 
-    report: AuditReport
+    report: AuditResult
     summary: content.Summary
     provenance: dict[str, Any]
     plots: list[Plot] = field(default_factory=list)
@@ -156,7 +156,7 @@ SECTIONS: tuple[Section, ...] = (
 
 
 def _caution() -> str:
-    from ..audit import CAUTION
+    from forecastaudit.result import CAUTION
 
     return CAUTION
 
@@ -175,8 +175,8 @@ def _environment() -> jinja2.Environment:
     return env
 
 
-def _shared(report: AuditReport, with_plots: bool) -> _Shared:
-    from ..record import provenance
+def _shared(report: AuditResult, with_plots: bool) -> _Shared:
+    from forecastaudit.record.document import provenance
 
     return _Shared(
         report=report,
@@ -186,12 +186,12 @@ def _shared(report: AuditReport, with_plots: bool) -> _Shared:
     )
 
 
-def render_html(report: AuditReport) -> str:
+def render_html(report: AuditResult) -> str:
     """The full report as one self-contained HTML document.
 
     Parameters
     ----------
-    report : AuditReport
+    report : AuditResult
         The audit to report.
 
     Returns
@@ -223,12 +223,12 @@ def render_html(report: AuditReport) -> str:
     )
 
 
-def render_compact_html(report: AuditReport, top: int = 5) -> str:
-    """A short HTML summary for notebooks (``AuditReport._repr_html_``).
+def render_compact_html(report: AuditResult, top: int = 5) -> str:
+    """A short HTML summary for notebooks (``AuditResult._repr_html_``).
 
     Parameters
     ----------
-    report : AuditReport
+    report : AuditResult
         The audit to summarise.
     top : int
         How many fail and warn findings to show, the most severe first.

@@ -11,10 +11,10 @@ from __future__ import annotations
 
 from typing import TYPE_CHECKING
 
-from . import content
+from forecastaudit.report import content
 
 if TYPE_CHECKING:
-    from ..audit import AuditReport
+    from forecastaudit.result import AuditResult
 
 __all__ = ["escape_markdown", "markdown_table", "render_markdown"]
 
@@ -70,7 +70,7 @@ def _finding_line(item: content.FindingItem) -> str:
     )
 
 
-def _findings(report: AuditReport) -> list[str]:
+def _findings(report: AuditResult) -> list[str]:
     groups = content.finding_groups(report)
     if not groups:
         return ["No findings."]
@@ -95,12 +95,12 @@ def _findings(report: AuditReport) -> list[str]:
     return lines
 
 
-def render_markdown(report: AuditReport) -> str:
+def render_markdown(report: AuditResult) -> str:
     """The report as GitHub-flavoured Markdown.
 
     Parameters
     ----------
-    report : AuditReport
+    report : AuditResult
         The audit to report.
 
     Returns
@@ -110,8 +110,8 @@ def render_markdown(report: AuditReport) -> str:
         and likelihood tables, the estimators, forecasts, residual and holdout tables when
         the audit has them, the tolerances, a provenance summary and the caution.
     """
-    from ..audit import CAUTION
-    from ..record import provenance
+    from forecastaudit.record.document import provenance
+    from forecastaudit.result import CAUTION
 
     s = content.summary(report)
     facts = provenance(report)

@@ -23,10 +23,10 @@ import numpy as np
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
-from ..compare import REFERENCE_KEY
+from forecastaudit.estimate import REFERENCE_KEY
 
 if TYPE_CHECKING:
-    from ..audit import AuditReport
+    from forecastaudit.result import AuditResult
 
 __all__ = [
     "PALETTE",
@@ -147,7 +147,7 @@ def _style_axes(ax: Any) -> None:
     ax.tick_params(colors=PALETTE["ink"], labelsize=9)
 
 
-def _time_axis(report: AuditReport, positions: np.ndarray) -> np.ndarray | Any:
+def _time_axis(report: AuditResult, positions: np.ndarray) -> np.ndarray | Any:
     """x values for observation positions: timestamps when the series has a time index."""
     import pandas as pd
 
@@ -159,7 +159,7 @@ def _time_axis(report: AuditReport, positions: np.ndarray) -> np.ndarray | Any:
     return positions
 
 
-def _future_axis(report: AuditReport, steps: int) -> np.ndarray | Any:
+def _future_axis(report: AuditResult, steps: int) -> np.ndarray | Any:
     import pandas as pd
 
     future = report.series.future_index(steps)
@@ -186,7 +186,7 @@ def _finite(value: Any) -> bool:
 
 
 # ---------------------------------------------------------------------- parameters
-def parameter_plot(report: AuditReport) -> Plot | None:
+def parameter_plot(report: AuditResult) -> Plot | None:
     """Each parameter per estimator, against +-1 and +-2 reference standard errors.
 
     One panel per parameter; estimators are rows. The vertical line is the reference
@@ -278,7 +278,7 @@ def parameter_plot(report: AuditReport) -> Plot | None:
 
 
 # ---------------------------------------------------------------------- the series
-def series_plot(report: AuditReport) -> Plot:
+def series_plot(report: AuditResult) -> Plot:
     """The series on its original scale; the held-out part shaded when there is a holdout."""
     values = np.asarray(report.series.values, dtype=float)
     positions = np.arange(values.size)
@@ -321,12 +321,12 @@ def series_plot(report: AuditReport) -> Plot:
 
 
 # ---------------------------------------------------------------------- forecasts
-def forecast_plot(report: AuditReport, history: int | None = None) -> Plot | None:
+def forecast_plot(report: AuditResult, history: int | None = None) -> Plot | None:
     """Forecasts with intervals at the reference optimum and the implementation spread.
 
     Parameters
     ----------
-    report : AuditReport
+    report : AuditResult
     history : int, optional
         Observations of history to show before the forecasts (default three seasonal
         periods, or 36).
@@ -430,12 +430,12 @@ def _autocorrelations(x: np.ndarray, lags: int) -> np.ndarray:
     return np.array([np.dot(x[:-h], x[h:]) / denominator for h in range(1, lags + 1)])
 
 
-def residual_autocorrelation_plot(report: AuditReport, key: str | None = None) -> Plot | None:
+def residual_autocorrelation_plot(report: AuditResult, key: str | None = None) -> Plot | None:
     """Autocorrelations of one estimate's one-step residuals with approximate 95% bounds.
 
     Parameters
     ----------
-    report : AuditReport
+    report : AuditResult
     key : str, optional
         Whose residuals (default the reference optimum, else the first estimator with
         residuals).
@@ -580,7 +580,7 @@ def likelihood_profile_figure(
     )
 
 
-def likelihood_profile_plots(report: AuditReport) -> list[Plot]:
+def likelihood_profile_plots(report: AuditResult) -> list[Plot]:
     """One profile per disagreeing estimate: the reference log-likelihood along the line
     from the reference optimum (t = 0) to that estimate (t = 1)."""
     plots = []
@@ -604,7 +604,7 @@ def likelihood_profile_plots(report: AuditReport) -> list[Plot]:
     return plots
 
 
-def likelihood_grid_plot(report: AuditReport) -> Plot | None:
+def likelihood_grid_plot(report: AuditResult) -> Plot | None:
     """Contours of the profiled reference log-likelihood over a model's two coefficients,
     with every disagreeing estimate and the reference optimum marked."""
     grid = report.likelihood_grid
@@ -654,7 +654,7 @@ def likelihood_grid_plot(report: AuditReport) -> Plot | None:
 
 
 # ---------------------------------------------------------------------- all of them
-def report_plots(report: AuditReport) -> list[Plot]:
+def report_plots(report: AuditResult) -> list[Plot]:
     """Every figure the report has data for, in reading order."""
     made = [
         parameter_plot(report),

@@ -1,0 +1,236 @@
+"""Reading statsmodels state-space results: shared by the adapters whose engine it is.
+
+statsmodels' SARIMAX and ARIMA, pmdarima's ARIMA and sktime's ARIMA forecaster all end in a
+``statsmodels.tsa.statespace.sarimax.SARIMAXResults``; this module turns one into canonical
+values. Only adapters of that engine import it.
+"""
+
+from __future__ import annotations
+
+import re
+from typing import Any, Literal
+
+import numpy as np
+
+from forecastaudit.adapters.protocol import FitOutput, ForecastOutput
+from forecastaudit.conventions import intercept_to_mean, mean_to_intercept, trend_scale
+from forecastaudit.spec import ModelSpec
+
+INTERVAL_METHOD = (
+    "Gaussian: point forecast +/- z x the Kalman-filter forecast standard error at the "
+    "maximum-likelihood sigma2 (parameter uncertainty not included)"
+)
+
+ENGINE = "statsmodels-statespace"
+
+MeanKind = Literal["intercept", "mean", "trend"]
+
+_LAG_NAME = re.compile(r"^(ar|ma)\.(S\.)?L(\d+)$")
+
+
+def canonical_coefficients(
+    names: list[str], values: np.ndarray, spec: ModelSpec, mean_kind: MeanKind
+) -> tuple[dict[str, float], list[str]]:
+    """Map statsmodels parameter names and values to canonical coefficients.
+
+    Parameters
+    ----------
+    names, values
+        ``result.model.param_names`` and ``result.params``.
+    spec : ModelSpec
+    mean_kind : {"intercept", "mean", "trend"}
+        How the constant enters: ``intercept`` is SARIMAX's ``c`` in
+        ``phi(B)Phi(B^m) w_t = c + ...`` (so mu = c / (phi(1)Phi(1))); ``mean`` is a regression
+        constant equal to mu (tsa.arima ARIMA with no differencing); ``trend`` is the
+        coefficient of ``t^(d+D)`` in a regression with ARIMA errors (mu = (d+D)! m^D b).
+
+    Returns
+    -------
+    params : dict
+        Canonical coefficients (no sigma2).
+    notes : list of str
+        The conversions made, in plain words.
+    """
+    params: dict[str, float] = {}
+    constant_name: str | None = None
+    constant: float | None = None
+    extra: list[str] = []
+    for name, value in zip(names, np.asarray(values, dtype=float), strict=True):
+        match = _LAG_NAME.match(name)
+        if match:
+            kind, seasonal, lag = match.groups()
+            prefix = ("s" if seasonal else "") + kind
+            params[f"{prefix}_lag{lag}"] = float(value)
+        elif name in {"intercept", "const", "drift", "x1"} and spec.mean:
+            constant_name, constant = name, float(value)
+        elif name != "sigma2":
+            extra.append(name)
+    notes: list[str] = []
+    if extra:
+        # Kept under the native name so the audit sees that a different model was fitted.
+        params.update({f"extra:{name}": float(values[names.index(name)]) for name in extra})
+    if spec.mean:
+        if constant is None:
+            raise RuntimeError(f"no constant among the fitted parameters {names}")
+        if mean_kind == "intercept":
+            params["mu"] = intercept_to_mean(constant, spec, params)
+            notes.append(
+                f"mu = {constant_name} / (phi(1) Phi(1)) = {constant:.6g} / "
+                f"{constant / params['mu'] if params['mu'] else float('nan'):.6g}"
+            )
+        elif mean_kind == "trend":
+            scale = trend_scale(spec)
+            params["mu"] = constant * scale
+            notes.append(
+                f"mu = {scale:g} x {constant_name} (coefficient of t^{spec.n_differences} in "
+                "levels, after differencing)"
+            )
+        else:
+            params["mu"] = constant
+    return params, notes
+
+
+def loglike_definition(result: Any) -> str:
+    """Describe how this result's log-likelihood is defined, from the model's own settings."""
+    model = result.model
+    burn = int(result.loglikelihood_burn)
+    if getattr(model, "simple_differencing", False):
+        where = "the differenced series (simple differencing)"
+    else:
+        where = "the undifferenced series, differencing kept in the state vector"
+    init = getattr(model.ssm, "initialization", None)
+    diffuse = getattr(init, "approximate_diffuse_variance", None) if init is not None else None
+    prior = (
+        f"approximate diffuse prior (variance {diffuse:g}) on the non-stationary states"
+        if diffuse
+        else "the model's default initialisation"
+    )
+    if getattr(model.ssm, "_initialization", None) == "diffuse" or getattr(
+        model, "use_exact_diffuse", False
+    ):
+        prior = "exact diffuse initialisation"
+    return (
+        f"exact Gaussian by Kalman filter on {where}, {prior}; the first {burn} observations "
+        "are not counted; 2*pi constant included; at the estimated sigma2"
+    )
+
+
+def read_result(result: Any, spec: ModelSpec, mean_kind: MeanKind) -> dict[str, Any]:
+    """Everything the adapters need from a SARIMAXResults, in plain values."""
+    names = list(result.model.param_names)
+    values = np.asarray(result.params, dtype=float)
+    params, conversions = canonical_coefficients(names, values, spec, mean_kind)
+    native = dict(zip(names, values.tolist(), strict=True))
+    retvals = dict(getattr(result, "mle_retvals", None) or {})
+    settings = dict(getattr(result, "mle_settings", None) or {})
+    optimizer = {
+        "method": settings.get("optimizer"),
+        "maxiter": settings.get("maxiter"),
+        "converged": retvals.get("converged"),
+        "iterations": retvals.get("iterations"),
+        "warnflag": retvals.get("warnflag"),
+        "function_calls": retvals.get("fcalls"),
+        "final_objective": retvals.get("fopt"),
+    }
+    converged = retvals.get("converged")
+    return {
+        "params": params,
+        "native_params": native,
+        "sigma2": float(native.get("sigma2", result.scale)),
+        "loglike": float(result.llf),
+        "loglike_definition": loglike_definition(result),
+        "n_used": int(result.nobs_effective),
+        "k_counted": int(result.df_model),
+        "criteria": {
+            "aic": float(result.aic),
+            "aicc": float(result.aicc),
+            "bic": float(result.bic),
+        },
+        "converged": None if converged is None else bool(converged),
+        "optimizer": optimizer,
+        "model_options": dict(result.model._get_init_kwds()),
+        "fit_options": {
+            "method": settings.get("optimizer"),
+            "maxiter": settings.get("maxiter"),
+            "start_params": "library default (conditional least squares)",
+        },
+        "conversions": conversions,
+    }
+
+
+def to_fit_output(
+    result: Any,
+    spec: ModelSpec,
+    mean_kind: MeanKind,
+    *,
+    options: dict[str, Any] | None = None,
+    criteria: dict[str, float] | None = None,
+    n_used: int | None = None,
+    notes: list[str] | None = None,
+    overridden_defaults: dict[str, Any] | None = None,
+    native: Any = None,
+) -> FitOutput:
+    """A :class:`FitOutput` from a SARIMAXResults.
+
+    ``options`` are the wrapper's own resolved options (added to the statsmodels ones);
+    ``criteria`` and ``n_used`` replace statsmodels' when a wrapper reports its own.
+    """
+    read = read_result(result, spec, mean_kind)
+    return FitOutput(
+        params=read["params"],
+        native_params=read["native_params"],
+        sigma2_reported=read["sigma2"],
+        sigma2_definition="maximum likelihood (a parameter of the fit)",
+        sigma2_ml=read["sigma2"],
+        loglike=read["loglike"],
+        loglike_definition=read["loglike_definition"],
+        n_used=read["n_used"] if n_used is None else n_used,
+        k_counted=read["k_counted"],
+        criteria=read["criteria"] if criteria is None else criteria,
+        converged=read["converged"],
+        optimizer=read["optimizer"],
+        options={**read["model_options"], **read["fit_options"], **(options or {})},
+        conversions=read["conversions"],
+        notes=list(notes or []),
+        overridden_defaults=dict(overridden_defaults or {}),
+        native=result if native is None else native,
+    )
+
+
+def native_vector(param_names: list[str], spec: ModelSpec, params: dict[str, float]) -> np.ndarray:
+    """Canonical parameters as a SARIMAX parameter vector (``trend='c'`` for the mean).
+
+    The inverse of :func:`canonical_coefficients` with ``mean_kind="intercept"``.
+    """
+    values = []
+    for name in param_names:
+        match = _LAG_NAME.match(name)
+        if match:
+            kind, seasonal, lag = match.groups()
+            values.append(params[f"{'s' if seasonal else ''}{kind}_lag{lag}"])
+        elif name == "intercept":
+            values.append(mean_to_intercept(params["mu"], spec, params))
+        elif name == "sigma2":
+            values.append(params["sigma2"])
+        else:
+            raise KeyError(f"no canonical value for SARIMAX parameter {name!r}")
+    return np.array(values, dtype=float)
+
+
+def statespace_forecast(result: Any, steps: int, levels: tuple[float, ...]) -> ForecastOutput:
+    """Forecast and Gaussian intervals from a SARIMAXResults, as its users get them."""
+    forecast = result.get_forecast(steps)
+    lower, upper = {}, {}
+    for level in levels:
+        bounds = np.asarray(forecast.conf_int(alpha=1.0 - level / 100.0))
+        lower[level], upper[level] = bounds[:, 0], bounds[:, 1]
+    names = list(result.model.param_names)
+    return ForecastOutput(
+        mean=np.asarray(forecast.predicted_mean, dtype=float),
+        lower=lower,
+        upper=upper,
+        se=np.asarray(forecast.se_mean, dtype=float),
+        interval_method=INTERVAL_METHOD,
+        sigma2_used=float(np.asarray(result.params)[names.index("sigma2")]),
+        residuals=np.asarray(result.resid, dtype=float),
+    )

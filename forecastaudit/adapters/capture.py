@@ -1,0 +1,50 @@
+"""Calling a library while keeping its warnings and printed output; errors come back as values."""
+
+from __future__ import annotations
+
+import contextlib
+import io
+import time
+import traceback
+import warnings
+from dataclasses import dataclass
+from typing import Any
+
+from forecastaudit.estimate import CapturedWarning
+
+
+@dataclass
+class _Captured:
+    result: Any
+    error: str
+    trace: str
+    warnings: list[CapturedWarning]
+    output: str
+    seconds: float
+
+
+def _run_captured(func: Any, *args: Any) -> _Captured:
+    """Call ``func``, keeping its warnings and printed output; a raised error is returned."""
+    out_buffer, err_buffer = io.StringIO(), io.StringIO()
+    error, trace, result = "", "", None
+    start = time.perf_counter()
+    with (
+        warnings.catch_warnings(record=True) as caught,
+        contextlib.redirect_stdout(out_buffer),
+        contextlib.redirect_stderr(err_buffer),
+    ):
+        warnings.simplefilter("always")
+        try:
+            result = func(*args)
+        except Exception as exc:  # the library's failure is a finding, not a crash
+            error = f"{type(exc).__name__}: {exc}"
+            trace = traceback.format_exc(limit=3)
+    seconds = time.perf_counter() - start
+    captured = [
+        CapturedWarning(
+            category=w.category.__name__, message=str(w.message), source=f"{w.filename}:{w.lineno}"
+        )
+        for w in caught
+    ]
+    printed = (out_buffer.getvalue() + err_buffer.getvalue()).strip()
+    return _Captured(result, error, trace, captured, printed, seconds)

@@ -1,0 +1,427 @@
+"""The estimator protocol: what every adapter declares and returns.
+
+An adapter reads top to bottom as "translate the spec -> call the library -> translate the
+result". The shared work (availability, support checks from declared capabilities, timing,
+warning and output capture, turning exceptions into a failed estimate) lives here, once, in
+:meth:`EstimatorAdapter.fit`; adapters implement only :meth:`EstimatorAdapter._fit`.
+"""
+
+from __future__ import annotations
+
+import importlib
+import importlib.metadata
+from abc import ABC, abstractmethod
+from dataclasses import dataclass, field
+from typing import Any, ClassVar
+
+import numpy as np
+
+from forecastaudit.adapters.capture import _Captured, _run_captured
+from forecastaudit.conventions import coefficient_names, information_criteria, parameter_names
+from forecastaudit.errors import EstimatorError
+from forecastaudit.estimate import CapturedWarning, Estimate, Forecast
+from forecastaudit.spec import ModelSpec
+
+
+@dataclass(frozen=True)
+class Capabilities:
+    """What an estimator can fit, declared as data.
+
+    Attributes
+    ----------
+    mean_differences : frozenset of int
+        Values of d + D for which the adapter can estimate ``mu`` (the mean of the
+        differenced series). Empty when it cannot fit a mean at all.
+    drift : bool
+        Whether a drift (a mean with one difference) is available.
+    native_transform : bool
+        Whether the library can apply a Box-Cox/log transform itself (forecastaudit
+        transforms once before any estimator, so this is informational).
+    exog : bool
+        Whether exogenous regressors are accepted.
+    order_search : bool
+        Whether the library offers an automatic order search.
+    intervals : bool
+        Whether the library gives forecast intervals.
+    fixed_params : bool
+        Whether the adapter can filter and forecast at given canonical parameters (used to
+        check the reference predictor against a general-purpose Kalman filter).
+    """
+
+    mean_differences: frozenset[int] = frozenset()
+    drift: bool = False
+    native_transform: bool = False
+    exog: bool = False
+    order_search: bool = False
+    intervals: bool = True
+    fixed_params: bool = False
+
+    def to_dict(self) -> dict[str, Any]:
+        """JSON-ready form."""
+        return {
+            "mean_differences": sorted(self.mean_differences),
+            "drift": self.drift,
+            "native_transform": self.native_transform,
+            "exog": self.exog,
+            "order_search": self.order_search,
+            "intervals": self.intervals,
+            "fixed_params": self.fixed_params,
+        }
+
+
+@dataclass
+class FitOutput:
+    """What an adapter's ``_fit`` hands back, already in the canonical convention.
+
+    Attributes
+    ----------
+    params : dict
+        Canonical coefficients (``coefficient_names(spec)``), without sigma2.
+    native_params : dict
+        The library's own names and values, untouched.
+    sigma2_reported : float
+        The innovation variance as the library reports it.
+    sigma2_definition : str
+        What the reported variance is (``"maximum likelihood"`` or the divisor used).
+    sigma2_ml : float
+        The maximum-likelihood variance, converted where the library reports another one.
+    loglike : float
+        The log-likelihood as the library reports it.
+    loglike_definition : str
+        How the library defines it (initialisation, burn-in, constants, which n).
+    n_used : int
+        Observations the library's criteria count.
+    k_counted : int
+        Parameters the library's criteria count.
+    criteria : dict
+        The library's own ``aic``, ``aicc``, ``bic`` (NaN where not offered).
+    converged : bool or None
+        The optimiser's own verdict (None when the library gives none).
+    optimizer : dict
+        The optimiser's message, code, iterations, as the library reports them.
+    options : dict
+        Every option used: those set from the spec and the library defaults, resolved.
+    conversions : list of str
+        Conversions made on the way to the canonical convention, in plain words.
+    notes : list of str
+        Other remarks on how the library defines what it reports.
+    fitted_model : str
+        The model actually fitted, in our text form, when it differs from the spec.
+    overridden_defaults : dict
+        Library defaults that the spec overrode, with the default's value, e.g.
+        ``{"with_intercept": True}`` when the library would have added a constant.
+    native : object
+        The library's result object (kept in memory only, never written to a record).
+    """
+
+    params: dict[str, float]
+    native_params: dict[str, float]
+    sigma2_reported: float
+    sigma2_definition: str
+    sigma2_ml: float
+    loglike: float
+    loglike_definition: str
+    n_used: int
+    k_counted: int
+    criteria: dict[str, float]
+    converged: bool | None
+    optimizer: dict[str, Any]
+    options: dict[str, Any]
+    conversions: list[str] = field(default_factory=list)
+    notes: list[str] = field(default_factory=list)
+    fitted_model: str | None = None
+    overridden_defaults: dict[str, Any] = field(default_factory=dict)
+    native: Any = None
+
+
+@dataclass
+class ForecastOutput:
+    """What an adapter's forecast hands back, on the scale the library was given.
+
+    Attributes
+    ----------
+    mean : numpy.ndarray
+        Point forecasts for steps 1..h.
+    lower, upper : dict of float to numpy.ndarray
+        Interval bounds by level in percent (80.0, 95.0, ...).
+    se : numpy.ndarray or None
+        Forecast standard errors when the library gives them.
+    interval_method : str
+        How the library builds its intervals.
+    sigma2_used : float
+        The innovation variance the intervals use.
+    residuals : numpy.ndarray or None
+        In-sample one-step residuals (full length; the start-up values are dropped later).
+    """
+
+    mean: np.ndarray
+    lower: dict[float, np.ndarray]
+    upper: dict[float, np.ndarray]
+    se: np.ndarray | None
+    interval_method: str
+    sigma2_used: float
+    residuals: np.ndarray | None = None
+
+
+def _forecast_from(key: str, steps: int, levels: tuple[float, ...], call: _Captured) -> Forecast:
+    from scipy.stats import norm
+
+    if call.error or call.result is None:
+        return Forecast(
+            key=key,
+            status="failed",
+            steps=steps,
+            levels=levels,
+            reason=call.error or "the forecast returned nothing",
+            warnings=call.warnings,
+            output=(call.output + "\n" + call.trace).strip(),
+            seconds=call.seconds,
+        )
+    out: ForecastOutput = call.result
+    se, derived = out.se, False
+    if se is None:
+        widest = max(levels)
+        z = norm.ppf(0.5 + widest / 200.0)
+        se, derived = (out.upper[widest] - out.lower[widest]) / (2.0 * z), True
+    return Forecast(
+        key=key,
+        status="ok",
+        steps=steps,
+        levels=levels,
+        mean=np.asarray(out.mean, dtype=float),
+        lower={k: np.asarray(v, dtype=float) for k, v in out.lower.items()},
+        upper={k: np.asarray(v, dtype=float) for k, v in out.upper.items()},
+        se=np.asarray(se, dtype=float),
+        se_derived=derived,
+        interval_method=out.interval_method,
+        sigma2_used=float(out.sigma2_used),
+        residuals=None if out.residuals is None else np.asarray(out.residuals, dtype=float),
+        warnings=call.warnings,
+        output=call.output,
+        seconds=call.seconds,
+    )
+
+
+class LibraryBound:
+    """Version and availability of the library an adapter calls (``package``, ``module``)."""
+
+    package: ClassVar[str]
+    module: ClassVar[str]
+
+    @classmethod
+    def version(cls) -> str | None:
+        """Installed version of the package, or None when it is not installed."""
+        try:
+            return importlib.metadata.version(cls.package)
+        except importlib.metadata.PackageNotFoundError:
+            return None
+
+    @classmethod
+    def availability(cls) -> str | None:
+        """None when the library imports; otherwise the reason it does not."""
+        try:
+            importlib.import_module(cls.module)
+        except Exception as exc:  # any import failure makes the adapter unavailable
+            return f"{cls.module} could not be imported ({type(exc).__name__}: {exc})"
+        return None
+
+
+class EstimatorAdapter(LibraryBound, ABC):
+    """Base class of the estimator adapters.
+
+    Subclasses set the class attributes and implement :meth:`_fit`. Everything else
+    (availability, support checks against the declared capabilities, timing, capture of
+    warnings and printed output, conversion of exceptions into a failed estimate) is done
+    here once.
+
+    Attributes
+    ----------
+    key : str
+        Estimator key used in reports and by callers.
+    engine : str
+        Engine lineage; wrappers of the same engine share it.
+    package : str
+        Distribution name whose version is recorded.
+    module : str
+        Module imported to check availability.
+    description : str
+        One line: which class of which library is called.
+    capabilities : Capabilities
+        What the estimator can fit.
+    """
+
+    kind: ClassVar[str] = "fit"
+    key: ClassVar[str]
+    engine: ClassVar[str]
+    package: ClassVar[str]
+    module: ClassVar[str]
+    description: ClassVar[str]
+    capabilities: ClassVar[Capabilities]
+
+    # ------------------------------------------------------------------ declared checks
+    @classmethod
+    def unsupported_reason(cls, spec: ModelSpec) -> str | None:
+        """None when the declared capabilities cover ``spec``; otherwise why not."""
+        caps = cls.capabilities
+        if spec.mean and spec.n_differences not in caps.mean_differences:
+            return (
+                f"{cls.description} cannot estimate a mean of the differenced series with "
+                f"d + D = {spec.n_differences} (it can with d + D in "
+                f"{sorted(caps.mean_differences) or 'no case'})."
+            )
+        if spec.exog and not caps.exog:
+            return f"{cls.description} does not take exogenous regressors."
+        return None
+
+    # ------------------------------------------------------------------ the fit
+    def fit(self, y: np.ndarray, spec: ModelSpec) -> Estimate:
+        """Fit ``spec`` to ``y`` (already transformed) and return the canonical estimate.
+
+        Never raises for a library failure: the estimate's status says what happened.
+        """
+        base = {
+            "key": self.key,
+            "engine": self.engine,
+            "package": self.package,
+            "version": self.version(),
+            "spec": spec,
+        }
+        missing = self.availability()
+        if missing is not None:
+            return Estimate(**base, status="unavailable", reason=missing)
+        unsupported = self.unsupported_reason(spec)
+        if unsupported is not None:
+            return Estimate(**base, status="unsupported", reason=unsupported)
+        if len(y) <= spec.lost_to_differencing:
+            return Estimate(
+                **base,
+                status="failed",
+                reason=(
+                    f"the series ({len(y)} observations) is no longer than the "
+                    f"{spec.lost_to_differencing} used up by differencing; nothing was fitted"
+                ),
+            )
+
+        call = _run_captured(self._fit, np.array(y, dtype=float, copy=True), spec)
+        result, captured, printed, seconds = call.result, call.warnings, call.output, call.seconds
+        if call.error or result is None:
+            return Estimate(
+                **base,
+                status="failed",
+                reason=call.error or "the fit returned nothing",
+                warnings=captured,
+                output=(printed + "\n" + call.trace).strip(),
+                seconds=seconds,
+            )
+        n_w = len(y) - spec.lost_to_differencing
+        return self._estimate_from(result, base, spec, n_w, captured, printed, seconds)
+
+    def _estimate_from(
+        self,
+        result: FitOutput,
+        base: dict[str, Any],
+        spec: ModelSpec,
+        n_w: int,
+        captured: list[CapturedWarning],
+        printed: str,
+        seconds: float,
+    ) -> Estimate:
+        names = coefficient_names(spec)
+        missing = [name for name in names if name not in result.params]
+        if missing:
+            return Estimate(
+                **base,
+                status="failed",
+                reason=f"the fit returned no value for {', '.join(missing)}",
+                native_params={str(k_): float(v) for k_, v in result.native_params.items()},
+                warnings=captured,
+                output=printed,
+                seconds=seconds,
+            )
+        params = {name: float(result.params[name]) for name in names}
+        params["sigma2"] = float(result.sigma2_ml)
+        ordered = {name: params[name] for name in parameter_names(spec)}
+        extra = sorted(name[len("extra:") :] for name in result.params if name.startswith("extra:"))
+        fitted_model = result.fitted_model
+        if extra and fitted_model is None:
+            fitted_model = f"{spec} with extra terms: {', '.join(extra)}"
+        k = len(names) + 1
+        return Estimate(
+            **base,
+            status="ok",
+            params=ordered,
+            native_params={str(k_): float(v) for k_, v in result.native_params.items()},
+            sigma2_reported=float(result.sigma2_reported),
+            sigma2_definition=result.sigma2_definition,
+            loglike_native=float(result.loglike),
+            loglike_definition=result.loglike_definition,
+            n_used_native=int(result.n_used),
+            k_counted_native=int(result.k_counted),
+            criteria_native={k_: float(v) for k_, v in result.criteria.items()},
+            criteria=information_criteria(result.loglike, k, n_w),
+            n_w=n_w,
+            k=k,
+            converged=result.converged,
+            optimizer=result.optimizer,
+            options=result.options,
+            conversions=list(result.conversions),
+            notes=list(result.notes),
+            fitted_model=fitted_model,
+            overridden_defaults=dict(result.overridden_defaults),
+            warnings=captured,
+            output=printed,
+            seconds=seconds,
+            native=result.native,
+        )
+
+    @abstractmethod
+    def _fit(self, y: np.ndarray, spec: ModelSpec) -> FitOutput:
+        """Translate the spec, call the library on ``y``, translate the result."""
+
+    # ------------------------------------------------------------------ forecasts
+    def forecast(self, estimate: Estimate, steps: int, levels: tuple[float, ...]) -> Forecast:
+        """Forecast ``steps`` ahead from a fitted estimate, with intervals at ``levels`` (%).
+
+        Uses the library's own forecast and interval method, as its users would. Never
+        raises for a library failure; the forecast's status says what happened.
+        """
+        if not estimate.ok or estimate.native is None:
+            return Forecast(
+                key=self.key,
+                status="failed",
+                steps=steps,
+                levels=levels,
+                reason=f"no fitted model to forecast from ({estimate.status})",
+            )
+        call = _run_captured(self._forecast, estimate.native, steps, levels)
+        return _forecast_from(self.key, steps, levels, call)
+
+    def forecast_at(
+        self,
+        y: np.ndarray,
+        spec: ModelSpec,
+        params: dict[str, float],
+        steps: int,
+        levels: tuple[float, ...],
+    ) -> Forecast:
+        """Filter ``y`` at given canonical parameters and forecast (``fixed_params`` only)."""
+        if not self.capabilities.fixed_params:
+            raise EstimatorError(f"{self.key} cannot forecast at given parameters.")
+        call = _run_captured(
+            self._forecast_at, np.array(y, dtype=float, copy=True), spec, params, steps, levels
+        )
+        return _forecast_from(self.key, steps, levels, call)
+
+    def _forecast(self, native: Any, steps: int, levels: tuple[float, ...]) -> ForecastOutput:
+        """Forecast with the library from its fitted object ``native``."""
+        raise NotImplementedError(f"{self.key} does not forecast")
+
+    def _forecast_at(
+        self,
+        y: np.ndarray,
+        spec: ModelSpec,
+        params: dict[str, float],
+        steps: int,
+        levels: tuple[float, ...],
+    ) -> ForecastOutput:
+        raise NotImplementedError(f"{self.key} cannot forecast at given parameters")

@@ -1,0 +1,269 @@
+"""Model-choice stability: does the ranking of candidate models depend on the implementation?
+
+Each candidate is fitted by every estimator and scored on a holdout, and the ranking is
+compared across implementations.
+"""
+
+from __future__ import annotations
+
+import math
+import time
+from collections.abc import Iterable, Mapping, Sequence
+from dataclasses import dataclass, field
+from typing import Any
+
+import pandas as pd
+
+from forecastaudit.diagnosis.findings import Finding
+from forecastaudit.diagnosis.tolerances import Tolerances
+from forecastaudit.errors import SpecError
+from forecastaudit.search.common import _json, _records
+from forecastaudit.spec import ModelSpec
+
+
+# ====================================================================== model choice
+@dataclass
+class ModelChoiceResult:
+    """The result of :func:`compare_models`.
+
+    Attributes
+    ----------
+    specs : list of ModelSpec
+        The candidate models, in the order given.
+    holdout, origins : int
+        Holdout length per origin and number of origins.
+    scores : pandas.DataFrame
+        One row per (model, estimator): holdout ``mase``, ``rmse``, ``mae``, the reference
+        ``aicc`` at that estimator's estimate, ``d``, ``D`` and the status.
+    mase_ranks : pandas.DataFrame
+        Rank of each model (columns) within each implementation (rows) by holdout MASE.
+    aicc_ranks : pandas.DataFrame
+        Rank by reference AICc within each group of models that share their differencing
+        (columns ``<model>``), per implementation; NaN where a model has no partner.
+    preferred : dict of str to str
+        Per implementation, the model with the lowest holdout MASE.
+    stable : bool
+        True when every implementation ranks the models the same way by MASE.
+    findings : list of Finding
+    reports : dict of str to AuditResult
+        The audit of each model (memory only, not in :meth:`to_dict`).
+    """
+
+    specs: list[ModelSpec]
+    holdout: int
+    origins: int
+    scores: pd.DataFrame
+    mase_ranks: pd.DataFrame
+    aicc_ranks: pd.DataFrame
+    preferred: dict[str, str]
+    stable: bool
+    findings: list[Finding]
+    seconds: float = 0.0
+    reports: dict[str, Any] = field(default_factory=dict, repr=False)
+
+    def to_dict(self) -> dict[str, Any]:
+        """JSON-ready form (numpy values to Python, NaN to None)."""
+        return {
+            "models": [s.to_dict() for s in self.specs],
+            "holdout": self.holdout,
+            "origins": self.origins,
+            "scores": _records(self.scores),
+            "mase_ranks": {
+                str(k): {str(c): _json(v) for c, v in row.items()}
+                for k, row in self.mase_ranks.iterrows()
+            },
+            "aicc_ranks": {
+                str(k): {str(c): _json(v) for c, v in row.items()}
+                for k, row in self.aicc_ranks.iterrows()
+            },
+            "preferred": dict(self.preferred),
+            "stable": self.stable,
+            "findings": [f.to_dict() for f in self.findings],
+            "seconds": self.seconds,
+        }
+
+    def __str__(self) -> str:
+        lines = [
+            f"Model choice over {len(self.specs)} models, holdout {self.origins} x "
+            f"{self.holdout}: {'same ranking in every implementation' if self.stable else 'RANKING DIFFERS between implementations'}",  # noqa: E501
+            "",
+        ]
+        with pd.option_context("display.width", 140, "display.max_columns", 20):
+            lines += ["Rank by holdout MASE:", self.mase_ranks.to_string(), ""]
+            cols = ["model", "estimator", "mase", "rmse", "aicc"]
+            lines += ["Scores:", self.scores[cols].to_string(index=False), ""]
+        lines += [f"  {f}" for f in self.findings]
+        return "\n".join(lines)
+
+
+def compare_models(
+    y: Any,
+    specs: Sequence[ModelSpec | str],
+    *,
+    holdout: int,
+    origins: int = 1,
+    estimators: Iterable[str] | None = None,
+    tolerances: Tolerances | Mapping[str, float] | None = None,
+    period: int | None = None,
+) -> ModelChoiceResult:
+    """Does the choice between candidate models depend on the implementation?
+
+    Each model is audited with :func:`forecastaudit.pipeline` (every estimator and the
+    reference optimum, with the same holdout and origins); the models are ranked within
+    each implementation by pooled holdout MASE (Hyndman & Koehler 2006) and, among models
+    that share their differencing, by reference AICc at each implementation's estimate. A
+    ranking that differs between implementations is a finding.
+
+    Parameters
+    ----------
+    y : pandas.Series, numpy.ndarray or sequence of numbers
+        The series on its original scale.
+    specs : sequence of ModelSpec or str
+        Two or more candidate models (same transform for the likelihoods to compare).
+    holdout : int
+        Observations held out per origin.
+    origins : int
+        Rolling origins (default 1).
+    estimators : iterable of str, optional
+        Estimator keys (default all).
+    tolerances : Tolerances or mapping, optional
+        ``accuracy_rtol`` decides whether a flip between close MASE values is a warning.
+    period : int, optional
+        Seasonal period when the series' index does not give one.
+
+    Returns
+    -------
+    ModelChoiceResult
+    """
+    from forecastaudit.pipeline import audit
+
+    parsed = [ModelSpec.parse(s) if isinstance(s, str) else s for s in specs]
+    if len(parsed) < 2:
+        raise SpecError("compare_models needs at least two models to compare.")
+    tol = (
+        tolerances
+        if isinstance(tolerances, Tolerances)
+        else Tolerances.from_dict(dict(tolerances or {}))
+    )
+    started = time.perf_counter()
+    reports: dict[str, Any] = {}
+    rows = []
+    for spec in parsed:
+        report = audit(y, spec, estimators, tol, period=period, holdout=holdout, origins=origins)
+        label = str(report.spec)
+        reports[label] = report
+        accuracy = report.holdout.accuracy if report.holdout is not None else pd.DataFrame()
+        for key, estimate in report.estimates.items():
+            has = key in accuracy.index
+            rows.append(
+                {
+                    "model": label,
+                    "estimator": key,
+                    "status": estimate.status,
+                    "d": report.spec.d,
+                    "D": report.spec.D,
+                    "mase": float(accuracy.loc[key, "mase"]) if has else math.nan,
+                    "rmse": float(accuracy.loc[key, "rmse"]) if has else math.nan,
+                    "mae": float(accuracy.loc[key, "mae"]) if has else math.nan,
+                    "aicc": float(estimate.criteria.get("aicc", math.nan))
+                    if estimate.ok
+                    else math.nan,
+                }
+            )
+    scores = pd.DataFrame(rows)
+    labels = list(reports)
+    mase = scores.pivot(index="estimator", columns="model", values="mase")[labels]
+    complete = mase.dropna()
+    mase_ranks = complete.rank(axis=1, method="min").astype(int)
+    orderings = {
+        key: tuple(row.sort_values(kind="stable").index) for key, row in complete.iterrows()
+    }
+    preferred = {key: order[0] for key, order in orderings.items()}
+    stable = len(set(orderings.values())) <= 1
+    findings: list[Finding] = []
+    if not stable:
+        groups: dict[tuple[str, ...], list[str]] = {}
+        for key, order in orderings.items():
+            groups.setdefault(order, []).append(key)
+        # Is the flip larger than the accuracy tolerance anywhere?
+        beyond = False
+        for key, row in complete.iterrows():
+            best = row.min()
+            others_first = {preferred[k] for k in preferred} - {preferred[key]}
+            for label in others_first:
+                if row[label] > best * (1.0 + tol.accuracy_rtol):
+                    beyond = True
+        findings.append(
+            Finding(
+                "ranking-flip",
+                "warn" if beyond else "info",
+                None,
+                "mase",
+                "The ranking of the models by holdout MASE differs between implementations: "
+                + "; ".join(
+                    f"{', '.join(keys)} rank {' < '.join(order)}" for order, keys in groups.items()
+                )
+                + (
+                    ". The MASE gaps exceed the accuracy tolerance "
+                    f"({100 * tol.accuracy_rtol:g}%): the choice of model depends on the "
+                    "implementation."
+                    if beyond
+                    else ". Every gap is within the accuracy tolerance "
+                    f"({100 * tol.accuracy_rtol:g}%)."
+                ),
+                {
+                    "orderings": {k: list(v) for k, v in orderings.items()},
+                    "beyond_tolerance": beyond,
+                },
+            )
+        )
+    elif orderings:
+        first = next(iter(orderings.values()))
+        findings.append(
+            Finding(
+                "ranking-stable",
+                "info",
+                None,
+                "mase",
+                f"Every implementation ({', '.join(orderings)}) ranks the models the same by "
+                f"holdout MASE: {' < '.join(first)}.",
+                {"ordering": list(first)},
+            )
+        )
+    # Reference AICc ranks, only among models that share their differencing.
+    aicc = scores.pivot(index="estimator", columns="model", values="aicc")[labels]
+    aicc_ranks = pd.DataFrame(index=aicc.index, columns=labels, dtype=float)
+    diff_of = {str(r.spec): (r.spec.d, r.spec.D) for r in reports.values()}
+    for choice in set(diff_of.values()):
+        members = [lab for lab in labels if diff_of[lab] == choice]
+        if len(members) < 2:
+            continue
+        aicc_ranks[members] = aicc[members].rank(axis=1, method="min")
+        sub = aicc[members].dropna()
+        orders = {tuple(row.sort_values(kind="stable").index) for _, row in sub.iterrows()}
+        if len(orders) > 1:
+            findings.append(
+                Finding(
+                    "ranking-flip",
+                    "warn",
+                    None,
+                    "aicc",
+                    f"Among the models with d={choice[0]}, D={choice[1]} the ranking by "
+                    "reference AICc at each implementation's estimate differs between "
+                    "implementations.",
+                    {"orderings": [list(o) for o in orders]},
+                )
+            )
+    return ModelChoiceResult(
+        specs=[r.spec for r in reports.values()],
+        holdout=holdout,
+        origins=origins,
+        scores=scores,
+        mase_ranks=mase_ranks,
+        aicc_ranks=aicc_ranks,
+        preferred=preferred,
+        stable=stable,
+        findings=findings,
+        seconds=time.perf_counter() - started,
+        reports=reports,
+    )

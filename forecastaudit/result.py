@@ -1,0 +1,189 @@
+"""The result of an audit: estimates, tables, findings and the verdict."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any
+
+import pandas as pd
+
+from forecastaudit.diagnosis.findings import Finding
+from forecastaudit.diagnosis.forecasts import (
+    OriginalScaleForecast,
+)
+from forecastaudit.diagnosis.holdout import HoldoutResult
+from forecastaudit.diagnosis.tolerances import Tolerances
+from forecastaudit.estimate import Estimate, Forecast
+from forecastaudit.series import PreparedSeries
+from forecastaudit.spec import ModelSpec
+
+CAUTION = (
+    "Agreement between implementations is evidence about the numerics of the fit, not proof "
+    "that the model is fit for its purpose. Whether it may be used is for the organisation's "
+    "model-risk policy and for qualified review to decide, above all where forecasts drive "
+    "staffing, financial, health or safety decisions."
+)
+
+
+@dataclass
+class AuditResult:
+    """The result of :func:`audit`.
+
+    Attributes
+    ----------
+    spec : ModelSpec
+        The specification audited (with the period in use).
+    series : PreparedSeries
+        The validated input (original scale).
+    tolerances : Tolerances
+        The tolerances the verdict was reached under.
+    estimates : dict of str to Estimate
+        Every estimator asked for, by key, whatever its status, plus ``"reference"`` (the
+        reference optimum) when the reference fit ran.
+    parameters : pandas.DataFrame
+        Canonical parameters: rows are canonical names, columns estimator keys, with the
+        reference standard errors in ``reference_se``.
+    likelihoods : pandas.DataFrame
+        Per estimator: native and reference log-likelihood, gap to the best, n, k and the
+        criteria as reported and on the canonical definition.
+    findings : list of Finding
+        Most severe first.
+    forecasts : dict of str to OriginalScaleForecast
+        Forecasts from the full series on the original scale (median and bias-adjusted mean,
+        intervals), per estimator and for the reference optimum.
+    spread : pandas.DataFrame or None
+        Per horizon, the range of point forecasts across independent engines beside the
+        reference interval width.
+    residual_tests : pandas.DataFrame or None
+        Ljung-Box tests of each estimator's residuals.
+    holdout : HoldoutResult or None
+        Holdout accuracy and pairwise comparisons, when a holdout was asked for.
+    profiles : dict of str to pandas.DataFrame
+        For each estimator whose estimate disagrees with the reference optimum, the
+        reference log-likelihood along the straight line from the optimum (t = 0) to that
+        estimate (t = 1): one peak, a ridge, or two optima.
+    likelihood_grid : dict or None
+        For models with two coefficients, the reference log-likelihood on a grid of both
+        around the optimum (``names``, ``x``, ``y``, ``loglike``, ``profiled_loglike``).
+    order_search : forecastaudit.search.OrderSearchAudit or None
+        The order-search audit, when ``order_search=True``.
+    created : str
+        UTC time the audit finished (ISO 8601).
+    """
+
+    spec: ModelSpec
+    series: PreparedSeries
+    tolerances: Tolerances
+    estimates: dict[str, Estimate]
+    parameters: pd.DataFrame
+    likelihoods: pd.DataFrame
+    findings: list[Finding]
+    standard_errors: dict[str, float] = field(default_factory=dict)
+    reference_starts: list[dict[str, Any]] = field(default_factory=list)
+    forecasts: dict[str, OriginalScaleForecast] = field(default_factory=dict)
+    forecasts_transformed: dict[str, Forecast] = field(default_factory=dict)
+    spread: pd.DataFrame | None = None
+    residual_tests: pd.DataFrame | None = None
+    holdout: HoldoutResult | None = None
+    profiles: dict[str, pd.DataFrame] = field(default_factory=dict)
+    likelihood_grid: dict[str, Any] | None = None
+    order_search: Any = None
+    options: dict[str, Any] = field(default_factory=dict)
+    created: str = ""
+
+    # ------------------------------------------------------------------ verdict
+    @property
+    def passed(self) -> bool:
+        """True when no finding has severity ``fail``."""
+        return not any(f.severity == "fail" for f in self.findings)
+
+    @property
+    def verdict(self) -> str:
+        """``"pass"`` or ``"fail"``."""
+        return "pass" if self.passed else "fail"
+
+    @property
+    def independent_engines(self) -> list[str]:
+        """Independent engines whose estimates agree with the reference optimum."""
+        for f in self.findings:
+            if f.kind == "engine-count":
+                return list(f.values.get("agreeing", []))
+        return []
+
+    def findings_of(self, severity: str | None = None, kind: str | None = None) -> list[Finding]:
+        """Findings filtered by severity and/or kind."""
+        return [
+            f
+            for f in self.findings
+            if (severity is None or f.severity == severity) and (kind is None or f.kind == kind)
+        ]
+
+    # ------------------------------------------------------------------ output
+    def to_dict(self, *, created: str | None = None, timings: bool = True) -> dict[str, Any]:
+        """The audit record as a plain dictionary (see ``record.build_record``)."""
+        from forecastaudit.record.document import build_record
+
+        return build_record(self, created=created, timings=timings)
+
+    def to_json(
+        self, path: str | None = None, *, created: str | None = None, timings: bool = True
+    ) -> str:
+        """The audit record as JSON text; also written (atomically) to ``path`` if given.
+
+        ``created`` fixes the creation time and ``timings=False`` leaves out wall-clock
+        times, so that identical inputs give identical bytes.
+        """
+        from forecastaudit.files import write_text_atomic
+        from forecastaudit.record.document import dumps
+
+        text = dumps(self.to_dict(created=created, timings=timings))
+        if path is not None:
+            write_text_atomic(path, text)
+        return text
+
+    def to_html(self, path: str | None = None) -> str:
+        """The full HTML report (one self-contained file); also written to ``path`` if given."""
+        from forecastaudit.files import write_text_atomic
+        from forecastaudit.report.html import render_html
+
+        text = render_html(self)
+        if path is not None:
+            write_text_atomic(path, text)
+        return text
+
+    def to_markdown(self, path: str | None = None) -> str:
+        """The Markdown report, for pasting into a change request; written to ``path`` if given."""
+        from forecastaudit.files import write_text_atomic
+        from forecastaudit.report.markdown import render_markdown
+
+        text = render_markdown(self)
+        if path is not None:
+            write_text_atomic(path, text)
+        return text
+
+    def _repr_html_(self) -> str:
+        from forecastaudit.report.html import render_compact_html
+
+        return render_compact_html(self)
+
+    def __str__(self) -> str:
+        lines = [
+            f"forecastaudit: {self.spec} on '{self.series.name}' "
+            f"({len(self.series)} observations) -> {self.verdict.upper()}",
+            "",
+        ]
+        with pd.option_context("display.width", 120, "display.max_columns", 20):
+            lines += ["Parameters (canonical convention):", self.parameters.to_string(), ""]
+            cols = ["status", "loglike_native", "loglike_reference", "gap_to_best", "aicc"]
+            lines += ["Log-likelihoods:", self.likelihoods[cols].to_string(), ""]
+        counts = {s: len(self.findings_of(s)) for s in ("fail", "warn", "info")}
+        lines.append(
+            f"Findings: {counts['fail']} fail, {counts['warn']} warn, {counts['info']} info"
+        )
+        lines += [f"  {f}" for f in self.findings if f.severity != "info"]
+        lines += ["", CAUTION]
+        return "\n".join(lines)
+
+
+#: The old name of :class:`AuditResult`, kept so existing code goes on working.
+AuditReport = AuditResult

@@ -1,0 +1,513 @@
+"""Order-search audit and model-choice stability.
+
+:func:`audit_order_search` runs every installed automatic order search with its own
+defaults, records what each selected and how it decided, decomposes every disagreement into
+its causes by re-running one search with one setting harmonised at a time, and runs our own
+bounded exhaustive search under the reference likelihood (AICc on the canonical definition)
+within each differencing choice a search made. Information criteria do not compare models
+with different differencing, because the likelihoods are of different series (common
+practice, no source); so the ranking is made within each choice. Candidates within 2 AICc
+units of the best have substantial support (Burnham, K.P., Anderson, D.R. (2002), *Model
+Selection and Multimodel Inference*, 2nd ed., section 2.6).
+
+:func:`compare_models` asks whether the *choice* between candidate models depends on the
+implementation: each candidate is fitted by every estimator and scored on a holdout, and
+the ranking is compared across implementations.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterable, Mapping
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from forecastaudit.adapters.registry import available_searches, get_adapter, get_search
+from forecastaudit.diagnosis.findings import Finding
+from forecastaudit.errors import SpecError
+from forecastaudit.estimate import SearchOutcome
+from forecastaudit.search.common import _json, _key, _records, _text
+from forecastaudit.search.decomposition import (
+    RERUN_LIMIT,
+    _decompose,
+    _setting_value,
+    _tests_summary,
+)
+from forecastaudit.search.exhaustive import exhaustive_reference_search
+from forecastaudit.series import prepare_series
+from forecastaudit.spec import ModelSpec
+
+# Rules of thumb (common practice, no source).
+LARGE_PQ = 4  # p + q at or above this is large
+
+
+SUM_NEAR_ONE = 0.1  # |1 - sum(ar)| or |1 + sum(ma)| below this is "near"
+
+
+# ====================================================================== the audit
+@dataclass
+class OrderSearchAudit:
+    """The result of :func:`audit_order_search`.
+
+    Attributes
+    ----------
+    series_name : str
+        Display name of the series.
+    n : int
+        Observations.
+    period : int or None
+        Seasonal period.
+    transform : str or None
+        Transform applied before every search.
+    searches : dict of str to SearchOutcome
+        Each library's search with its own defaults, by key.
+    selections : pandas.DataFrame
+        Per search: status, selected model, d, D, constant, criterion and its value as the
+        library reports it, the criterion's definition, candidates fitted, seconds,
+        constant rule, stepwise, and the selection's reference AICc, rank and distance to the
+        best within its differencing.
+    differencing_tests : pandas.DataFrame
+        Every step of every search's differencing decisions (test, series, statistic,
+        p-value, threshold, lags and lag rule, whether it asks for a difference).
+    decomposition : pandas.DataFrame
+        One row per harmonised re-run: the pair of searches that disagree, the setting
+        harmonised, its two values, the search re-run, what it selected then, and whether
+        that reproduces the other search's selection.
+    candidates : pandas.DataFrame
+        The exhaustive reference search (see :func:`exhaustive_reference_search`), with the
+        searches that chose each candidate in ``chosen_by``.
+    default_constant : pandas.DataFrame
+        For each selected order without a constant, what each fit adapter's library would
+        add if called with its defaults.
+    timings : pandas.DataFrame
+        Seconds and candidates of each search beside our exhaustive search.
+    findings : list of Finding
+        Most severe first.
+    """
+
+    series_name: str
+    n: int
+    period: int | None
+    transform: str | None
+    searches: dict[str, SearchOutcome]
+    selections: pd.DataFrame
+    differencing_tests: pd.DataFrame
+    decomposition: pd.DataFrame
+    candidates: pd.DataFrame
+    default_constant: pd.DataFrame
+    timings: pd.DataFrame
+    findings: list[Finding]
+    exhaustive: dict[str, Any] = field(default_factory=dict)
+    reruns: list[SearchOutcome] = field(default_factory=list)
+
+    def supported(self, d: int, D: int) -> pd.DataFrame:
+        """Candidates within 2 AICc units of the best with ``d`` and ``D`` differences."""
+        c = self.candidates
+        return c[(c["d"] == d) & (c["D"] == D) & c["within_2"]]
+
+    def findings_of(self, kind: str | None = None, severity: str | None = None) -> list[Finding]:
+        """Findings filtered by kind and/or severity."""
+        return [
+            f
+            for f in self.findings
+            if (kind is None or f.kind == kind) and (severity is None or f.severity == severity)
+        ]
+
+    def to_dict(self) -> dict[str, Any]:
+        """JSON-ready form (numpy values to Python, NaN to None)."""
+        candidates = self.candidates.drop(columns=["params"], errors="ignore")
+        return {
+            "series": {"name": self.series_name, "n": self.n},
+            "period": self.period,
+            "transform": self.transform,
+            "searches": {k: o.to_dict() for k, o in self.searches.items()},
+            "selections": _records(self.selections),
+            "differencing_tests": _records(self.differencing_tests),
+            "decomposition": _records(self.decomposition),
+            "exhaustive": _json(self.exhaustive),
+            "candidates": _records(candidates),
+            "default_constant": _records(self.default_constant),
+            "timings": _records(self.timings),
+            "findings": [f.to_dict() for f in self.findings],
+        }
+
+    def __str__(self) -> str:
+        lines = [
+            f"Order-search audit of '{self.series_name}' ({self.n} observations, period "
+            f"{self.period}, transform {self.transform})",
+            "",
+        ]
+        with pd.option_context("display.width", 140, "display.max_columns", 20):
+            cols = [
+                c
+                for c in (
+                    "status",
+                    "selected",
+                    "criterion",
+                    "criterion_value",
+                    "candidates",
+                    "seconds",
+                    "reference_aicc",
+                    "rank",
+                    "delta_aicc",
+                )
+                if c in self.selections
+            ]
+            lines += ["Selections:", self.selections[cols].to_string(), ""]
+            if not self.differencing_tests.empty:
+                cols = [
+                    "search",
+                    "decision",
+                    "applied_to",
+                    "statistic",
+                    "p_value",
+                    "threshold",
+                    "lags",
+                    "says_difference",
+                ]
+                lines += ["Differencing tests:", self.differencing_tests[cols].to_string(), ""]
+            if not self.decomposition.empty:
+                cols = ["searches", "setting", "rerun", "to", "selected", "reproduces_other"]
+                lines += ["Harmonised re-runs:", self.decomposition[cols].to_string(), ""]
+            lines += ["Timings (seconds):", self.timings.to_string(), ""]
+        lines.append(f"Findings ({len(self.findings)}):")
+        lines += [f"  {f}" for f in self.findings]
+        return "\n".join(lines)
+
+
+def _default_constant_check(
+    y_t: np.ndarray, specs: Iterable[ModelSpec], estimators: Iterable[str] | None
+) -> tuple[pd.DataFrame, list[Finding]]:
+    """What each fit adapter's library would add to each order when called with defaults."""
+    from forecastaudit.adapters.registry import available_estimators
+
+    keys = list(estimators) if estimators is not None else available_estimators()
+    rows, findings = [], []
+    for spec in specs:
+        plain = ModelSpec(spec.order, spec.seasonal, spec.period, mean=False)
+        s = plain.n_differences
+        implied = {0: "a non-zero level mean", 1: "a linear trend in levels (a drift)"}.get(
+            s, f"a polynomial trend of degree {s} in levels"
+        )
+        for key in keys:
+            estimate = get_adapter(key).fit(y_t, plain)
+            added = dict(estimate.overridden_defaults)
+            rows.append(
+                {
+                    "model": _text(plain),
+                    "estimator": key,
+                    "status": estimate.status,
+                    "default_adds": ", ".join(f"{k}={v!r}" for k, v in added.items()) or None,
+                    "implies": implied if added else None,
+                }
+            )
+            if added:
+                findings.append(
+                    Finding(
+                        "default-adds-constant",
+                        "warn" if s >= 2 else "info",
+                        key,
+                        "mu",
+                        f"Called with its defaults for {_text(plain)}, {key} would add a "
+                        f"constant ({', '.join(f'{k}={v!r}' for k, v in added.items())}): with "
+                        f"d + D = {s} that is {implied}. forecastaudit passes the option "
+                        "explicitly; a user who does not gets a different model.",
+                        {"model": _text(plain), "defaults": _json(added), "d_plus_D": s},
+                    )
+                )
+    return pd.DataFrame(rows), findings
+
+
+def _advisories(spec: ModelSpec, params: Mapping[str, float], who: str) -> list[Finding]:
+    """Rules of thumb on one selected model (common practice, no source)."""
+    out: list[Finding] = []
+    text = _text(spec)
+
+    def add(message: str, values: dict[str, Any]) -> None:
+        out.append(
+            Finding(
+                "rule-of-thumb",
+                "info",
+                None,
+                "order",
+                f"{text} ({who}): {message} (common practice, no source).",
+                {"model": text, **values},
+            )
+        )
+
+    if spec.d > 1 or spec.D > 1:
+        add(
+            f"{spec.d} regular and {spec.D} seasonal differences; more than one of either is "
+            "rarely needed",
+            {"d": spec.d, "D": spec.D},
+        )
+    if spec.p + spec.q >= LARGE_PQ:
+        add(
+            f"p + q = {spec.p + spec.q} is large; a simpler model may forecast as well",
+            {"p_plus_q": spec.p + spec.q},
+        )
+    if spec.P > 1 or spec.Q > 1:
+        add(
+            f"seasonal orders P={spec.P}, Q={spec.Q} above 1 are rarely needed",
+            {"P": spec.P, "Q": spec.Q},
+        )
+    for prefix, diff, kind in (("ma", spec.d, "regular"), ("sma", spec.D, "seasonal")):
+        total = sum(v for k, v in params.items() if k.startswith(f"{prefix}_lag"))
+        if diff >= 1 and any(k.startswith(f"{prefix}_lag") for k in params):
+            if abs(1.0 + total) < SUM_NEAR_ONE:
+                add(
+                    f"the {kind} MA coefficients sum to {total:.3f}, near -1, after {kind} "
+                    "differencing: a sign of over-differencing",
+                    {f"{prefix}_sum": total},
+                )
+    for prefix, kind in (("ar", "regular"), ("sar", "seasonal")):
+        total = sum(v for k, v in params.items() if k.startswith(f"{prefix}_lag"))
+        if any(k.startswith(f"{prefix}_lag") for k in params) and abs(1.0 - total) < SUM_NEAR_ONE:
+            add(
+                f"the {kind} AR coefficients sum to {total:.3f}, near 1: a sign of a missing "
+                f"{kind} difference",
+                {f"{prefix}_sum": total},
+            )
+    return out
+
+
+def audit_order_search(
+    y: Any,
+    period: int | None = None,
+    *,
+    transform: str | None = None,
+    searches: Iterable[str] | None = None,
+    max_p: int = 2,
+    max_q: int = 2,
+    max_P: int = 1,
+    max_Q: int = 1,
+    estimators: Iterable[str] | None = None,
+    rerun_limit: float = RERUN_LIMIT,
+    n_jobs: int | None = None,
+    check_defaults: bool = True,
+    name: str | None = None,
+) -> OrderSearchAudit:
+    """Audit the automatic order searches of every installed stack on one series.
+
+    Parameters
+    ----------
+    y : pandas.Series, numpy.ndarray or sequence of numbers
+        The series on its original scale.
+    period : int, optional
+        Seasonal period (default: from the series' frequency).
+    transform : None, "log" or a Box-Cox transform, optional
+        Applied once before every search (as in :class:`forecastaudit.ModelSpec`).
+    searches : iterable of str, optional
+        Search keys (see :func:`forecastaudit.adapters.search_base.available_searches`);
+        default all. Each runs with its library's own defaults.
+    max_p, max_q, max_P, max_Q : int
+        Bounds of our exhaustive reference search (not of the libraries' searches). A
+        search's choice outside them is fitted as well, so its rank is defined.
+    estimators : iterable of str, optional
+        Fit adapters asked in the default-constant check (default all).
+    rerun_limit : float
+        A search whose default run took longer than this (seconds) is not re-run for the
+        decomposition; the cheaper search of each disagreeing pair is the one re-run.
+    n_jobs : int, optional
+        Worker processes for the exhaustive search (default 1, in this process).
+    check_defaults : bool
+        Run the default-constant check through the fit adapters.
+    name : str, optional
+        Display name of the series.
+
+    Returns
+    -------
+    OrderSearchAudit
+    """
+    series = prepare_series(y, period=period, name=name)
+    m = series.period if series.period and series.period > 1 else 1
+    base_spec = ModelSpec(period=m if m > 1 else None, transform=transform)
+    y_t = series.transformed(base_spec)
+    keys = list(searches) if searches is not None else available_searches()
+    if not keys:
+        raise SpecError("searches is empty; pass None for every installed search.")
+    outcomes = {key: get_search(key).run(y_t, m) for key in keys}
+    findings: list[Finding] = []
+    for o in outcomes.values():
+        if o.status != "ok":
+            findings.append(
+                Finding(
+                    "search-failed",
+                    "warn",
+                    o.key,
+                    "order",
+                    f"{o.key}'s order search is {o.status}: {o.reason}",
+                    {"status": o.status},
+                )
+            )
+        elif o.warnings:
+            findings.append(
+                Finding(
+                    "library-warnings",
+                    "info",
+                    o.key,
+                    "order",
+                    f"{o.key}'s order search raised {len(o.warnings)} warning(s); first: "
+                    f"{o.warnings[0].category}: {o.warnings[0].message[:200]}",
+                    {"count": len(o.warnings)},
+                )
+            )
+    ok = {k: o for k, o in outcomes.items() if o.ok}
+
+    decomposition, disagreements, reruns = _decompose(outcomes, y_t, m, rerun_limit)
+    findings += disagreements
+
+    choices = {(o.spec.d, o.spec.D) for o in ok.values() if o.spec is not None}
+    candidates, info = exhaustive_reference_search(
+        y_t,
+        m,
+        choices,
+        max_p=max_p,
+        max_q=max_q,
+        max_P=max_P,
+        max_Q=max_Q,
+        extra=[o.spec for o in ok.values() if o.spec is not None],
+        n_jobs=n_jobs,
+    )
+    chosen: dict[str, list[str]] = {}
+    for o in ok.values():
+        chosen.setdefault(_text(o.spec), []).append(o.key)
+    if not candidates.empty:
+        candidates["chosen_by"] = [
+            ", ".join(chosen.get(t, [])) or None for t in candidates["model"]
+        ]
+
+    selection_rows = []
+    for key, o in outcomes.items():
+        row: dict[str, Any] = {
+            "search": key,
+            "engine": o.engine,
+            "status": o.status,
+            "selected": o.selected or None,
+            "d": o.spec.d if o.spec else None,
+            "D": o.spec.D if o.spec else None,
+            "constant": o.spec.mean if o.spec else None,
+            "d_decided_by": o.d_decided_by or None,
+            "D_decided_by": o.D_decided_by or None,
+            "criterion": o.criterion or None,
+            "criterion_value": o.criterion_value,
+            "criterion_definition": o.criterion_definition or None,
+            "constant_rule": o.constant_rule or None,
+            "stepwise": o.stepwise,
+            "candidates": o.candidates,
+            "seconds": o.seconds,
+        }
+        if o.ok and not candidates.empty:
+            match = candidates[candidates["model"] == _text(o.spec)].iloc[0]
+            same = candidates[(candidates["d"] == o.spec.d) & (candidates["D"] == o.spec.D)]
+            best = same.iloc[0]
+            best_grid = same[same["in_grid"]]["aicc"].min()
+            row.update(
+                {
+                    "reference_aicc": float(match["aicc"]),
+                    "rank": int(match["rank"]),
+                    "of": len(same),
+                    "delta_aicc": float(match["delta_aicc"]),
+                    "best_in_differencing": best["model"],
+                    "best_aicc": float(best["aicc"]),
+                    "grid_best_aicc": float(best_grid),
+                }
+            )
+            supported = same[same["within_2"]]["model"].tolist()
+            inside = bool(match["within_2"])
+            findings.append(
+                Finding(
+                    "search-rank",
+                    "info" if inside else "warn",
+                    key,
+                    "aicc",
+                    f"{key}'s choice {o.selected} ranks {int(match['rank'])} of {len(same)} "
+                    f"by reference AICc among models with d={o.spec.d}, D={o.spec.D} "
+                    f"({float(match['delta_aicc']):.2f} above the best, {best['model']}); "
+                    + (
+                        "within the 2-unit band of substantial support"
+                        if inside
+                        else "outside the 2-unit band of substantial support"
+                    )
+                    + f" (Burnham & Anderson 2002). Supported: {', '.join(supported)}.",
+                    {
+                        "rank": int(match["rank"]),
+                        "delta_aicc": float(match["delta_aicc"]),
+                        "best": best["model"],
+                        "supported": supported,
+                    },
+                )
+            )
+            findings += _advisories(o.spec, match["params"], key)
+        selection_rows.append(row)
+    selections = pd.DataFrame(selection_rows).set_index("search")
+
+    test_rows = [{"search": o.key, **t.to_dict()} for o in outcomes.values() for t in o.tests]
+    differencing_tests = pd.DataFrame(test_rows)
+    _differencing_findings(ok, findings)
+
+    default_table = pd.DataFrame()
+    if check_defaults and ok:
+        distinct = {_key(o.spec): o.spec for o in ok.values() if o.spec is not None}
+        plain = {(s.order, s.seasonal, s.m): s for s in distinct.values()}
+        default_table, default_findings = _default_constant_check(y_t, plain.values(), estimators)
+        findings += default_findings
+
+    timings = pd.DataFrame(
+        [
+            {
+                "search": k,
+                "seconds": o.seconds,
+                "candidates": o.candidates,
+                "processes": 1,
+            }
+            for k, o in outcomes.items()
+        ]
+        + [
+            {
+                "search": "reference exhaustive",
+                "seconds": info["seconds"],
+                "candidates": info["candidates"],
+                "processes": info["n_jobs"],
+            }
+        ]
+    ).set_index("search")
+    order = {"fail": 0, "warn": 1, "info": 2}
+    findings.sort(key=lambda f: order[f.severity])
+    return OrderSearchAudit(
+        series_name=series.name,
+        n=len(series),
+        period=m if m > 1 else None,
+        transform=base_spec.transform,
+        searches=outcomes,
+        selections=selections,
+        differencing_tests=differencing_tests,
+        decomposition=decomposition,
+        candidates=candidates,
+        default_constant=default_table,
+        timings=timings,
+        findings=findings,
+        exhaustive=info,
+        reruns=reruns,
+    )
+
+
+def _differencing_findings(ok: Mapping[str, SearchOutcome], findings: list[Finding]) -> None:
+    for decision, letter in (("regular", "d"), ("seasonal", "D")):
+        values = {k: _setting_value(o, letter) for k, o in ok.items()}
+        if len(set(values.values())) > 1:
+            findings.append(
+                Finding(
+                    "differencing-decision",
+                    "warn",
+                    None,
+                    letter,
+                    f"The {decision}-differencing decisions differ on the same data: "
+                    + "; ".join(_tests_summary(o, decision) for o in ok.values())
+                    + ". Information criteria cannot settle this: they do not compare models "
+                    "with different differencing (common practice, no source).",
+                    {"values": values},
+                )
+            )
