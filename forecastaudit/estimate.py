@@ -1,4 +1,11 @@
-"""Plain estimate types that cross process boundaries: estimates, forecasts, search outcomes."""
+"""Plain estimate types that cross process boundaries: estimates, forecasts, search outcomes.
+
+Each has a lossless ``to_dict`` / ``from_dict`` pair: ``from_dict(x.to_dict())`` equals
+``x`` in every field except the library's in-memory object (``native``), which never
+leaves the process that made it. Non-finite numbers are kept exactly (see
+:mod:`forecastaudit.jsonutil`). The JSON Schema of one estimate is
+``forecastaudit/data/estimate.schema.json`` (:func:`estimate_schema`).
+"""
 
 from __future__ import annotations
 
@@ -10,10 +17,36 @@ from typing import Any, Literal
 import numpy as np
 
 from forecastaudit.errors import EstimatorError
-from forecastaudit.jsonutil import _plain
+from forecastaudit.jsonutil import real, to_plain
 from forecastaudit.spec import ModelSpec
 
-Status = Literal["ok", "failed", "unavailable", "unsupported"]
+Status = Literal["ok", "failed", "unavailable", "unsupported", "timed-out"]
+#: Whether a reported innovation variance is the maximum-likelihood one or df-adjusted.
+Sigma2Kind = Literal["maximum-likelihood", "df-adjusted"]
+
+
+def _tagged(value: Any) -> Any:
+    return to_plain(value, nonfinite="tagged")
+
+
+def _spec_from_dict(data: dict[str, Any] | None) -> ModelSpec | None:
+    if data is None:
+        return None
+    transform = data.get("transform")
+    if isinstance(transform, list):
+        transform = tuple(transform)
+    return ModelSpec(
+        order=tuple(data["order"]),
+        seasonal=tuple(data["seasonal"]),
+        period=data.get("period"),
+        mean=bool(data.get("mean", False)),
+        transform=transform,
+        exog=tuple(data.get("exog", ())),
+    )
+
+
+def _reals(values: dict[str, Any]) -> dict[str, float]:
+    return {str(k): real(v) for k, v in values.items()}
 
 
 @dataclass(frozen=True)
@@ -27,6 +60,11 @@ class CapturedWarning:
     def to_dict(self) -> dict[str, str]:
         """JSON-ready form."""
         return {"category": self.category, "message": self.message, "source": self.source}
+
+    @classmethod
+    def from_dict(cls, data: dict[str, Any]) -> CapturedWarning:
+        """The inverse of :meth:`to_dict`."""
+        return cls(category=data["category"], message=data["message"], source=data["source"])
 
 
 @dataclass
@@ -42,14 +80,22 @@ class Estimate:
         as independent evidence.
     package, version : str
         The distribution that was called and its installed version.
-    status : {"ok", "failed", "unavailable", "unsupported"}
+    status : {"ok", "failed", "unavailable", "unsupported", "timed-out"}
         ``ok``: fitted. ``failed``: the library raised or returned nothing usable.
         ``unavailable``: the package is not installed. ``unsupported``: the library cannot
-        fit this spec (reason given); nothing was fitted.
+        fit this spec (reason given); nothing was fitted. ``timed-out``: no result within
+        the time limit; the work was stopped.
     reason : str
         Why the status is not ``ok`` (empty when it is).
     params : dict
         Canonical parameters including ``sigma2`` (the maximum-likelihood variance).
+    sigma2_kind : {"maximum-likelihood", "df-adjusted"}
+        What the reported variance ``sigma2_reported`` is; ``params["sigma2"]`` is always
+        the maximum-likelihood value.
+    extra_terms : dict
+        Terms the library fitted that the spec did not ask for (native names).
+    options : dict of str to dict
+        Every option of the call, resolved, one namespace per library (called one first).
     criteria : dict
         ``aic``, ``aicc``, ``bic`` on the canonical definition (k = coefficients + 1,
         n = n_w): from the library's own log-likelihood when fitted, replaced by the audit
@@ -72,6 +118,7 @@ class Estimate:
     params: dict[str, float] = field(default_factory=dict)
     native_params: dict[str, float] = field(default_factory=dict)
     sigma2_reported: float = math.nan
+    sigma2_kind: Sigma2Kind = "maximum-likelihood"
     sigma2_definition: str = ""
     loglike_native: float = math.nan
     loglike_definition: str = ""
@@ -83,7 +130,8 @@ class Estimate:
     k: int | None = None
     converged: bool | None = None
     optimizer: dict[str, Any] = field(default_factory=dict)
-    options: dict[str, Any] = field(default_factory=dict)
+    options: dict[str, dict[str, Any]] = field(default_factory=dict)
+    extra_terms: dict[str, float] = field(default_factory=dict)
     conversions: list[str] = field(default_factory=list)
     notes: list[str] = field(default_factory=list)
     fitted_model: str | None = None
@@ -103,8 +151,15 @@ class Estimate:
         """The maximum-likelihood innovation variance (NaN when not fitted)."""
         return self.params.get("sigma2", math.nan)
 
+    def option(self, name: str, default: Any = None) -> Any:
+        """A resolved option by its library name, the called library's namespace first."""
+        for values in self.options.values():
+            if name in values:
+                return values[name]
+        return default
+
     def to_dict(self) -> dict[str, Any]:
-        """JSON-ready form (the native result object is left out)."""
+        """JSON-ready form (the native result object is left out); see :meth:`from_dict`."""
         return {
             "key": self.key,
             "engine": self.engine,
@@ -112,29 +167,69 @@ class Estimate:
             "version": self.version,
             "status": self.status,
             "reason": self.reason,
-            "params": dict(self.params),
-            "native_params": dict(self.native_params),
-            "sigma2_reported": self.sigma2_reported,
+            "spec": None if self.spec is None else self.spec.to_dict(),
+            "params": _tagged(self.params),
+            "native_params": _tagged(self.native_params),
+            "extra_terms": _tagged(self.extra_terms),
+            "sigma2_reported": _tagged(self.sigma2_reported),
+            "sigma2_kind": self.sigma2_kind,
             "sigma2_definition": self.sigma2_definition,
-            "loglike_native": self.loglike_native,
+            "loglike_native": _tagged(self.loglike_native),
             "loglike_definition": self.loglike_definition,
             "n_used_native": self.n_used_native,
             "k_counted_native": self.k_counted_native,
-            "criteria_native": dict(self.criteria_native),
-            "criteria": dict(self.criteria),
+            "criteria_native": _tagged(self.criteria_native),
+            "criteria": _tagged(self.criteria),
             "n_w": self.n_w,
             "k": self.k,
             "converged": self.converged,
-            "optimizer": _plain(self.optimizer),
-            "options": _plain(self.options),
+            "optimizer": _tagged(self.optimizer),
+            "options": _tagged(self.options),
             "conversions": list(self.conversions),
             "notes": list(self.notes),
             "fitted_model": self.fitted_model,
-            "overridden_defaults": _plain(self.overridden_defaults),
+            "overridden_defaults": _tagged(self.overridden_defaults),
             "warnings": [w.to_dict() for w in self.warnings],
             "output": self.output,
-            "seconds": self.seconds,
+            "seconds": _tagged(self.seconds),
         }
+
+    @classmethod
+    def from_dict(cls, data: dict[str, Any]) -> Estimate:
+        """The inverse of :meth:`to_dict` (``native`` is None)."""
+        return cls(
+            key=data["key"],
+            engine=data["engine"],
+            package=data["package"],
+            version=data.get("version"),
+            status=data["status"],
+            reason=data.get("reason", ""),
+            spec=_spec_from_dict(data.get("spec")),
+            params=_reals(data.get("params", {})),
+            native_params=_reals(data.get("native_params", {})),
+            extra_terms=_reals(data.get("extra_terms", {})),
+            sigma2_reported=real(data.get("sigma2_reported")),
+            sigma2_kind=data.get("sigma2_kind", "maximum-likelihood"),
+            sigma2_definition=data.get("sigma2_definition", ""),
+            loglike_native=real(data.get("loglike_native")),
+            loglike_definition=data.get("loglike_definition", ""),
+            n_used_native=data.get("n_used_native"),
+            k_counted_native=data.get("k_counted_native"),
+            criteria_native=_reals(data.get("criteria_native", {})),
+            criteria=_reals(data.get("criteria", {})),
+            n_w=data.get("n_w"),
+            k=data.get("k"),
+            converged=data.get("converged"),
+            optimizer=dict(data.get("optimizer", {})),
+            options={str(ns): dict(v) for ns, v in data.get("options", {}).items()},
+            conversions=list(data.get("conversions", [])),
+            notes=list(data.get("notes", [])),
+            fitted_model=data.get("fitted_model"),
+            overridden_defaults=dict(data.get("overridden_defaults", {})),
+            warnings=[CapturedWarning.from_dict(w) for w in data.get("warnings", [])],
+            output=data.get("output", ""),
+            seconds=real(data.get("seconds", 0.0)),
+        )
 
 
 @dataclass
@@ -168,23 +263,64 @@ class Forecast:
         return self.status == "ok"
 
     def to_dict(self) -> dict[str, Any]:
-        """JSON-ready form (transformed scale)."""
+        """JSON-ready form (transformed scale); see :meth:`from_dict`.
+
+        Interval levels are keys that read back as the same float, so two levels never
+        share a key.
+        """
         return {
             "key": self.key,
             "status": self.status,
             "reason": self.reason,
             "steps": self.steps,
-            "levels": list(self.levels),
-            "mean": _plain(self.mean),
-            "se": _plain(self.se),
+            "levels": _tagged(list(self.levels)),
+            "mean": _tagged(self.mean),
+            "se": _tagged(self.se),
             "se_derived": self.se_derived,
-            "lower": {f"{k:g}": _plain(v) for k, v in self.lower.items()},
-            "upper": {f"{k:g}": _plain(v) for k, v in self.upper.items()},
+            "lower": {_level_key(k): _tagged(v) for k, v in self.lower.items()},
+            "upper": {_level_key(k): _tagged(v) for k, v in self.upper.items()},
             "interval_method": self.interval_method,
-            "sigma2_used": self.sigma2_used,
+            "sigma2_used": _tagged(self.sigma2_used),
+            "residuals": None if self.residuals is None else _tagged(self.residuals),
             "warnings": [w.to_dict() for w in self.warnings],
-            "seconds": self.seconds,
+            "output": self.output,
+            "seconds": _tagged(self.seconds),
         }
+
+    @classmethod
+    def from_dict(cls, data: dict[str, Any]) -> Forecast:
+        """The inverse of :meth:`to_dict`."""
+
+        def array(values: Any) -> np.ndarray:
+            return np.array([real(v) for v in values], dtype=float)
+
+        residuals = data.get("residuals")
+        return cls(
+            key=data["key"],
+            status=data["status"],
+            steps=int(data["steps"]),
+            levels=tuple(real(v) for v in data.get("levels", [])),
+            mean=array(data.get("mean", [])),
+            lower={float(k): array(v) for k, v in data.get("lower", {}).items()},
+            upper={float(k): array(v) for k, v in data.get("upper", {}).items()},
+            se=array(data.get("se", [])),
+            se_derived=bool(data.get("se_derived", False)),
+            interval_method=data.get("interval_method", ""),
+            sigma2_used=real(data.get("sigma2_used")),
+            residuals=None if residuals is None else array(residuals),
+            reason=data.get("reason", ""),
+            warnings=[CapturedWarning.from_dict(w) for w in data.get("warnings", [])],
+            output=data.get("output", ""),
+            seconds=real(data.get("seconds", 0.0)),
+        )
+
+
+def _level_key(level: float) -> str:
+    """A dictionary key for an interval level that reads back as the same float: ``"80"``
+    for 80.0, and the full ``repr`` where the short form would merge two levels
+    (``format(80.00000001, 'g')`` is ``"80"`` too)."""
+    short = f"{float(level):g}"
+    return short if float(short) == float(level) else repr(float(level))
 
 
 REFERENCE_KEY = "reference"
@@ -296,8 +432,16 @@ class DifferencingTest:
     source: str
 
     def to_dict(self) -> dict[str, Any]:
-        """JSON-ready form (NaN becomes None)."""
-        return {k: _finite(v) for k, v in dataclasses.asdict(self).items()}
+        """JSON-ready form; see :meth:`from_dict`."""
+        return {k: _tagged(v) for k, v in dataclasses.asdict(self).items()}
+
+    @classmethod
+    def from_dict(cls, data: dict[str, Any]) -> DifferencingTest:
+        """The inverse of :meth:`to_dict`."""
+        values = dict(data)
+        for name in ("statistic", "p_value", "threshold"):
+            values[name] = real(values.get(name))
+        return cls(**values)
 
 
 @dataclass
@@ -362,7 +506,7 @@ class SearchOutcome:
         return str(self.spec) if self.spec is not None else ""
 
     def to_dict(self) -> dict[str, Any]:
-        """JSON-ready form (the library's object and its trace text are left out)."""
+        """JSON-ready form (the library's object is left out); see :meth:`from_dict`."""
         return {
             "key": self.key,
             "engine": self.engine,
@@ -374,7 +518,7 @@ class SearchOutcome:
             "spec": None if self.spec is None else self.spec.to_dict(),
             "settings": self.settings.changed(),
             "criterion": self.criterion,
-            "criterion_value": _finite(self.criterion_value),
+            "criterion_value": _tagged(self.criterion_value),
             "criterion_definition": self.criterion_definition,
             "candidates": self.candidates,
             "d_decided_by": self.d_decided_by,
@@ -382,20 +526,50 @@ class SearchOutcome:
             "tests": [t.to_dict() for t in self.tests],
             "constant_rule": self.constant_rule,
             "stepwise": self.stepwise,
-            "bounds": _plain(self.bounds),
-            "options": _plain(self.options),
+            "bounds": _tagged(self.bounds),
+            "options": _tagged(self.options),
             "notes": list(self.notes),
             "warnings": [w.to_dict() for w in self.warnings],
-            "seconds": self.seconds,
+            "output": self.output,
+            "seconds": _tagged(self.seconds),
         }
 
+    @classmethod
+    def from_dict(cls, data: dict[str, Any]) -> SearchOutcome:
+        """The inverse of :meth:`to_dict` (``native`` is None)."""
+        return cls(
+            key=data["key"],
+            engine=data["engine"],
+            package=data["package"],
+            version=data.get("version"),
+            status=data["status"],
+            reason=data.get("reason", ""),
+            spec=_spec_from_dict(data.get("spec")),
+            settings=SearchSettings(**data.get("settings", {})),
+            criterion=data.get("criterion", ""),
+            criterion_value=real(data.get("criterion_value")),
+            criterion_definition=data.get("criterion_definition", ""),
+            candidates=data.get("candidates"),
+            d_decided_by=data.get("d_decided_by", ""),
+            D_decided_by=data.get("D_decided_by", ""),
+            tests=[DifferencingTest.from_dict(t) for t in data.get("tests", [])],
+            constant_rule=data.get("constant_rule", ""),
+            stepwise=data.get("stepwise"),
+            bounds=dict(data.get("bounds", {})),
+            options=dict(data.get("options", {})),
+            notes=list(data.get("notes", [])),
+            warnings=[CapturedWarning.from_dict(w) for w in data.get("warnings", [])],
+            output=data.get("output", ""),
+            seconds=real(data.get("seconds", 0.0)),
+        )
 
-def _finite(value: Any) -> Any:
-    if isinstance(value, float | np.floating):
-        value = float(value)
-        return value if math.isfinite(value) else None
-    if isinstance(value, np.integer):
-        return int(value)
-    if isinstance(value, np.bool_):
-        return bool(value)
-    return value
+
+
+
+def estimate_schema() -> dict[str, Any]:
+    """The JSON Schema of one estimate's :meth:`Estimate.to_dict` form."""
+    import json
+    from importlib import resources
+
+    text = resources.files("forecastaudit").joinpath("data/estimate.schema.json").read_text()
+    return json.loads(text)

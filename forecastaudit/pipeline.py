@@ -9,7 +9,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from forecastaudit.adapters.registry import available_estimators, get_adapter
+from forecastaudit.adapters.registry import adapter_class, available_estimators
 from forecastaudit.conventions import (
     coefficient_names,
     difference,
@@ -31,7 +31,9 @@ from forecastaudit.diagnosis.tables import likelihood_table, parameter_table
 from forecastaudit.diagnosis.tolerances import Tolerances
 from forecastaudit.errors import EstimatorError, SeriesError, SpecError
 from forecastaudit.estimate import REFERENCE_ENGINE, REFERENCE_KEY, Estimate, Forecast
+from forecastaudit.fitting import DEFAULT_TIME_LIMIT, fit_tasks, run_fits
 from forecastaudit.result import AuditResult
+from forecastaudit.run import Backend, make_backend
 from forecastaudit.series import PreparedSeries, check_length, prepare_series
 from forecastaudit.spec import ModelSpec
 
@@ -62,7 +64,7 @@ def _resolve_estimators(estimators: Iterable[str] | None) -> list[str]:
             "'reference' is forecastaudit's own fit and always runs; leave it out of estimators."
         )
     for key in keys:
-        get_adapter(key)  # raises EstimatorError naming the known keys
+        adapter_class(key)  # raises EstimatorError naming the known keys
     return keys
 
 
@@ -126,6 +128,8 @@ def audit(
     origins: int = 1,
     order_search: bool = False,
     progress: bool = False,
+    workers: int | Backend | None = None,
+    time_limit: float | None = DEFAULT_TIME_LIMIT,
 ) -> AuditResult:
     """Fit ``spec`` through every estimator, re-score under the reference likelihood, diagnose.
 
@@ -163,7 +167,16 @@ def audit(
         :func:`forecastaudit.search.audit_order_search`). Slow: pmdarima's own search
         alone takes tens of seconds on a monthly series.
     progress : bool
-        Show a progress bar (tqdm) over the estimators.
+        Show progress bars (tqdm) over the fits and the holdout origins.
+    workers : int or execution backend, optional
+        Where the fits run: None or 1 in this process (one BLAS thread while fitting);
+        N >= 2 in N local worker processes, which fit the estimators (and the holdout
+        origins) concurrently; or an execution backend from :mod:`forecastaudit.run`,
+        reused as it is (e.g. across several audits).
+    time_limit : float, optional
+        Seconds one estimator's fit and forecast may take, where the backend can stop it
+        (worker processes; a fit in this process cannot be stopped). Past it the estimator
+        is reported ``timed-out`` and the audit goes on. Default 600; None for no limit.
 
     Returns
     -------
@@ -194,14 +207,55 @@ def audit(
     level_tuple = _check_levels(levels)
     if holdout is not None:
         _check_holdout(series, spec, holdout, origins)
+
+    backend = make_backend(workers)
+    try:
+        return _audit_stages(
+            series,
+            spec,
+            y_t,
+            keys,
+            tol,
+            steps,
+            level_tuple,
+            holdout,
+            origins,
+            order_search,
+            backend=backend,
+            time_limit=time_limit,
+            progress=progress,
+        )
+    finally:
+        if not isinstance(workers, Backend):
+            backend.close()
+
+
+def _audit_stages(
+    series: PreparedSeries,
+    spec: ModelSpec,
+    y_t: np.ndarray,
+    keys: list[str],
+    tol: Tolerances,
+    steps: int,
+    level_tuple: tuple[float, ...],
+    holdout: int | None,
+    origins: int,
+    order_search: bool,
+    *,
+    backend: Backend,
+    time_limit: float | None,
+    progress: bool,
+) -> AuditResult:
     n_w = len(series) - spec.lost_to_differencing
-
-    iterator: Iterable[str] = keys
-    if progress:
-        from tqdm.auto import tqdm
-
-        iterator = tqdm(keys, desc=f"fitting {spec}", unit="estimator")
-    estimates = {key: get_adapter(key).fit(y_t, spec) for key in iterator}
+    # Fit stage: every estimator fits and forecasts where it runs; plain values come back.
+    outcomes = run_fits(
+        fit_tasks(keys, y_t, spec, steps=steps, levels=level_tuple),
+        backend,
+        time_limit=time_limit,
+        progress=f"fitting {spec}" if progress else None,
+    )
+    estimates = {key: o.estimate for key, o in zip(keys, outcomes, strict=True)}
+    library_forecasts = {key: o.forecast for key, o in zip(keys, outcomes, strict=True)}
 
     # Reference stage: a multi-start reference fit, then every estimate re-scored.
     from forecastaudit import reference as _reference
@@ -229,8 +283,8 @@ def audit(
     # Forecasts from the full series, with each library's own intervals.
     transformed: dict[str, Forecast] = {}
     for key, e in estimates.items():
-        if e.ok:
-            fc = get_adapter(key).forecast(e, steps, level_tuple)
+        fc = library_forecasts.get(key)
+        if e.ok and fc is not None:
             if fc.ok:
                 transformed[key] = fc
             else:
@@ -256,7 +310,15 @@ def audit(
     holdout_result = None
     if holdout:
         holdout_result = _run_holdout(
-            series, spec, keys, holdout, origins, level_tuple, progress=progress
+            series,
+            spec,
+            keys,
+            holdout,
+            origins,
+            level_tuple,
+            backend=backend,
+            time_limit=time_limit,
+            progress=progress,
         )
         for key, reason in holdout_result.failures.items():
             findings.append(Finding("holdout-failure", "warn", key, "holdout", reason))
@@ -424,6 +486,8 @@ def _run_holdout(
     origins: int,
     levels: tuple[float, ...],
     *,
+    backend: Backend,
+    time_limit: float | None,
     progress: bool = False,
 ) -> HoldoutResult:
     from forecastaudit import reference as _reference
@@ -445,5 +509,7 @@ def _run_holdout(
         levels,
         reference_forecaster,
         REFERENCE_KEY,
+        backend=backend,
+        time_limit=time_limit,
         progress=progress,
     )

@@ -125,6 +125,7 @@ def test_definition_differences_are_explained_not_failed():
         loglike_native=232.75,
         loglike_definition="exact diffuse initialisation",
         sigma2_reported=0.00136941,
+        sigma2_kind="df-adjusted",
         sigma2_definition="SSR / (n_w - 2), degrees-of-freedom adjusted",
         criteria_native={"aicc": -483.2215},
         n_used_native=144,

@@ -407,8 +407,10 @@ def test_box_jenkins_round_trip_through_statsmodels_names(model):
         names, values = _statsmodels_native(spec, canonical, kind)
         if mean_kind is None:
             mean_kind = "mean" if spec.n_differences == 0 else "trend"
-        back, _notes = canonical_coefficients(names, values, spec, mean_kind)
-        assert not any(name.startswith("extra:") for name in back)
+        # The adapter names the constant it set up; statsmodels calls a trend "x1".
+        constant = "x1" if mean_kind == "trend" else None
+        back, extra, _notes = canonical_coefficients(names, values, spec, mean_kind, constant)
+        assert extra == {}
         _assert_same(back, canonical)
         _assert_same(_canonical_to_bj(back), bj)
 
@@ -436,14 +438,29 @@ def test_box_jenkins_round_trip_through_statsforecast_names(model):
 
 def test_statsmodels_constant_not_in_the_spec_is_kept_as_an_extra_term():
     spec = ModelSpec((1, 1, 0))  # no mean asked for
-    params, _ = canonical_coefficients(
+    params, extra, _ = canonical_coefficients(
         ["intercept", "ar.L1", "sigma2"], np.array([0.01, 0.5, 1.0]), spec, "intercept"
     )
-    assert params == {"ar_lag1": 0.5, "extra:intercept": 0.01}
+    assert params == {"ar_lag1": 0.5}
+    assert extra == {"intercept": 0.01}
+
+
+def test_statsmodels_first_regressor_is_not_read_as_the_constant():
+    # statsmodels names the first regressor "x1", as it names a trend; only the name the
+    # adapter gave is the constant.
+    spec = ModelSpec((1, 1, 0), mean=True)
+    params, extra, _ = canonical_coefficients(
+        ["x1", "drift", "ar.L1", "sigma2"],
+        np.array([3.0, 0.2, 0.5, 1.0]),
+        spec,
+        "trend",
+        "drift",
+    )
+    assert params["mu"] == pytest.approx(0.2) and extra == {"x1": 3.0}
 
 
 def test_statsmodels_missing_constant_is_an_error():
-    with pytest.raises(RuntimeError, match="no constant among the fitted parameters"):
+    with pytest.raises(RuntimeError, match="no constant 'const' among the fitted parameters"):
         canonical_coefficients(
             ["ar.L1", "sigma2"], np.array([0.5, 1.0]), ModelSpec((1, 0, 0), mean=True), "mean"
         )

@@ -281,7 +281,7 @@ def test_no_constant_is_added_without_a_mean(airline_fits):
     for key in ("pmdarima", "sktime"):
         estimate = airline_fits[key]
         assert estimate.overridden_defaults == {"with_intercept": True}, key
-        assert estimate.options[f"{key}.with_intercept"] is False, key
+        assert estimate.options[key]["with_intercept"] is False, key
         assert "intercept" not in estimate.native_params, key
         assert not any(name.startswith("extra:") for name in estimate.params), key
         assert estimate.fitted_model is None, key
@@ -298,7 +298,7 @@ def test_default_constants_without_differencing_are_overridden(ar1_mean10):
     # statsforecast's include_mean defaults to True, which applies when d + D = 0.
     sf = get_adapter("statsforecast").fit(ar1_mean10.values, ModelSpec((1, 0, 0)))
     assert sf.overridden_defaults == {"include_mean": True}
-    assert sf.options["include_mean"] is False and list(sf.native_params) == ["ar1"]
+    assert sf.options["statsforecast"]["include_mean"] is False and list(sf.native_params) == ["ar1"]
 
 
 # ---------------------------------------------------------------------- sigma2 and criteria
@@ -406,9 +406,9 @@ def test_series_shorter_than_the_differencing_is_refused_before_the_library(log_
 
 def test_printed_output_is_captured(log_airline, capsys):
     class Noisy(StatsforecastArima):  # not registered: a local variant for this test only
-        def _fit(self, y, spec):
+        def _fit(self, request):
             print("fitting now")
-            return super()._fit(y, spec)
+            return super()._fit(request)
 
     fitted = Noisy().fit(log_airline, AIRLINE)
     assert fitted.status == "ok" and fitted.output == "fitting now"

@@ -121,6 +121,7 @@ def test_interval_difference_from_df_adjusted_sigma2_is_diagnosed() -> None:
         "ok",
         params={"sigma2": ml},
         sigma2_reported=adjusted,
+        sigma2_kind="df-adjusted",
         sigma2_definition="SSR / (n_w - 3), degrees-of-freedom adjusted",
     )
     transformed = {"reference": ref, "b": other}

@@ -76,8 +76,8 @@ class Shifted(StatsmodelsSarimax):
     engine = "test-engine"
     description = "SARIMAX with its AR coefficient moved by 0.2"
 
-    def _fit(self, y, spec):
-        out = super()._fit(y, spec)
+    def _fit(self, request):
+        out = super()._fit(request)
         out.params = {**out.params, "ar_lag1": out.params["ar_lag1"] + 0.2}
         return out
 """

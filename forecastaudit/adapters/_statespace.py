@@ -29,8 +29,12 @@ _LAG_NAME = re.compile(r"^(ar|ma)\.(S\.)?L(\d+)$")
 
 
 def canonical_coefficients(
-    names: list[str], values: np.ndarray, spec: ModelSpec, mean_kind: MeanKind
-) -> tuple[dict[str, float], list[str]]:
+    names: list[str],
+    values: np.ndarray,
+    spec: ModelSpec,
+    mean_kind: MeanKind,
+    constant_name: str | None = None,
+) -> tuple[dict[str, float], dict[str, float], list[str]]:
     """Map statsmodels parameter names and values to canonical coefficients.
 
     Parameters
@@ -43,35 +47,38 @@ def canonical_coefficients(
         ``phi(B)Phi(B^m) w_t = c + ...`` (so mu = c / (phi(1)Phi(1))); ``mean`` is a regression
         constant equal to mu (tsa.arima ARIMA with no differencing); ``trend`` is the
         coefficient of ``t^(d+D)`` in a regression with ARIMA errors (mu = (d+D)! m^D b).
+    constant_name : str, optional
+        The native name of the constant, given by the adapter that set the model up
+        (``"intercept"`` by default for SARIMAX). It is never guessed from the names:
+        statsmodels calls both a trend and the first regressor ``x1``.
 
     Returns
     -------
     params : dict
         Canonical coefficients (no sigma2).
+    extra_terms : dict
+        Fitted terms the spec did not ask for, under their native names.
     notes : list of str
         The conversions made, in plain words.
     """
+    constant_name = constant_name or {"intercept": "intercept", "mean": "const"}.get(mean_kind)
     params: dict[str, float] = {}
-    constant_name: str | None = None
+    extra: dict[str, float] = {}
     constant: float | None = None
-    extra: list[str] = []
     for name, value in zip(names, np.asarray(values, dtype=float), strict=True):
         match = _LAG_NAME.match(name)
         if match:
             kind, seasonal, lag = match.groups()
             prefix = ("s" if seasonal else "") + kind
             params[f"{prefix}_lag{lag}"] = float(value)
-        elif name in {"intercept", "const", "drift", "x1"} and spec.mean:
-            constant_name, constant = name, float(value)
+        elif spec.mean and name == constant_name:
+            constant = float(value)
         elif name != "sigma2":
-            extra.append(name)
+            extra[name] = float(value)  # a term the spec did not ask for
     notes: list[str] = []
-    if extra:
-        # Kept under the native name so the audit sees that a different model was fitted.
-        params.update({f"extra:{name}": float(values[names.index(name)]) for name in extra})
     if spec.mean:
         if constant is None:
-            raise RuntimeError(f"no constant among the fitted parameters {names}")
+            raise RuntimeError(f"no constant {constant_name!r} among the fitted parameters {names}")
         if mean_kind == "intercept":
             params["mu"] = intercept_to_mean(constant, spec, params)
             notes.append(
@@ -87,7 +94,7 @@ def canonical_coefficients(
             )
         else:
             params["mu"] = constant
-    return params, notes
+    return params, extra, notes
 
 
 def loglike_definition(result: Any) -> str:
@@ -115,11 +122,15 @@ def loglike_definition(result: Any) -> str:
     )
 
 
-def read_result(result: Any, spec: ModelSpec, mean_kind: MeanKind) -> dict[str, Any]:
+def read_result(
+    result: Any, spec: ModelSpec, mean_kind: MeanKind, constant_name: str | None = None
+) -> dict[str, Any]:
     """Everything the adapters need from a SARIMAXResults, in plain values."""
     names = list(result.model.param_names)
     values = np.asarray(result.params, dtype=float)
-    params, conversions = canonical_coefficients(names, values, spec, mean_kind)
+    params, extra, conversions = canonical_coefficients(
+        names, values, spec, mean_kind, constant_name
+    )
     native = dict(zip(names, values.tolist(), strict=True))
     retvals = dict(getattr(result, "mle_retvals", None) or {})
     settings = dict(getattr(result, "mle_settings", None) or {})
@@ -135,6 +146,7 @@ def read_result(result: Any, spec: ModelSpec, mean_kind: MeanKind) -> dict[str, 
     converged = retvals.get("converged")
     return {
         "params": params,
+        "extra_terms": extra,
         "native_params": native,
         "sigma2": float(native.get("sigma2", result.scale)),
         "loglike": float(result.llf),
@@ -163,7 +175,8 @@ def to_fit_output(
     spec: ModelSpec,
     mean_kind: MeanKind,
     *,
-    options: dict[str, Any] | None = None,
+    constant_name: str | None = None,
+    options: dict[str, dict[str, Any]] | None = None,
     criteria: dict[str, float] | None = None,
     n_used: int | None = None,
     notes: list[str] | None = None,
@@ -172,14 +185,16 @@ def to_fit_output(
 ) -> FitOutput:
     """A :class:`FitOutput` from a SARIMAXResults.
 
-    ``options`` are the wrapper's own resolved options (added to the statsmodels ones);
+    ``options`` are the wrapper's own resolved options, by namespace, placed before the
+    statsmodels ones;
     ``criteria`` and ``n_used`` replace statsmodels' when a wrapper reports its own.
     """
-    read = read_result(result, spec, mean_kind)
+    read = read_result(result, spec, mean_kind, constant_name)
     return FitOutput(
         params=read["params"],
         native_params=read["native_params"],
         sigma2_reported=read["sigma2"],
+        sigma2_kind="maximum-likelihood",
         sigma2_definition="maximum likelihood (a parameter of the fit)",
         sigma2_ml=read["sigma2"],
         loglike=read["loglike"],
@@ -189,7 +204,11 @@ def to_fit_output(
         criteria=read["criteria"] if criteria is None else criteria,
         converged=read["converged"],
         optimizer=read["optimizer"],
-        options={**read["model_options"], **read["fit_options"], **(options or {})},
+        options={
+            **(options or {}),
+            "statsmodels": {**read["model_options"], **read["fit_options"]},
+        },
+        extra_terms=read["extra_terms"],
         conversions=read["conversions"],
         notes=list(notes or []),
         overridden_defaults=dict(overridden_defaults or {}),

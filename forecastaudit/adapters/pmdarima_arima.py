@@ -15,10 +15,10 @@ from forecastaudit.adapters.protocol import (
     Capabilities,
     EstimatorAdapter,
     FitOutput,
+    FitRequest,
     ForecastOutput,
 )
 from forecastaudit.adapters.registry import register_estimator
-from forecastaudit.spec import ModelSpec
 
 
 @register_estimator
@@ -32,15 +32,12 @@ class PmdarimaArima(EstimatorAdapter):
     description = "pmdarima ARIMA"
     capabilities = Capabilities(
         mean_differences=frozenset(range(0, 6)),
-        drift=True,
-        native_transform=False,
-        exog=True,
-        order_search=True,
-        intervals=True,
     )
 
-    def _fit(self, y: np.ndarray, spec: ModelSpec) -> FitOutput:
+    def _fit(self, request: FitRequest) -> FitOutput:
         from pmdarima.arima import ARIMA
+
+        y, spec = request.y, request.spec
 
         model = ARIMA(
             order=spec.order,
@@ -53,7 +50,7 @@ class PmdarimaArima(EstimatorAdapter):
             model.arima_res_,
             spec,
             "intercept",
-            options={f"pmdarima.{k}": v for k, v in model.get_params().items()},
+            options={"pmdarima": dict(model.get_params())},
             criteria={"aic": model.aic(), "aicc": model.aicc(), "bic": model.bic()},
             notes=[
                 f"pmdarima's aicc() counts n = len(y) = {n}; its aic and bic are statsmodels' "

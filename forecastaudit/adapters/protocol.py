@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import importlib
 import importlib.metadata
+import math
 from abc import ABC, abstractmethod
 from dataclasses import dataclass, field
 from typing import Any, ClassVar
@@ -19,54 +20,77 @@ import numpy as np
 from forecastaudit.adapters.capture import _Captured, _run_captured
 from forecastaudit.conventions import coefficient_names, information_criteria, parameter_names
 from forecastaudit.errors import EstimatorError
-from forecastaudit.estimate import CapturedWarning, Estimate, Forecast
+from forecastaudit.estimate import Estimate, Forecast, Sigma2Kind
 from forecastaudit.spec import ModelSpec
 
 
 @dataclass(frozen=True)
 class Capabilities:
-    """What an estimator can fit, declared as data.
+    """What an adapter can do, declared as data and checked once, by the protocol.
+
+    Every field is enforced: the protocol refuses (status ``unsupported``, with the reason)
+    a spec that needs something the adapter does not declare, and calls the optional
+    methods only where they are declared.
 
     Attributes
     ----------
     mean_differences : frozenset of int
         Values of d + D for which the adapter can estimate ``mu`` (the mean of the
-        differenced series). Empty when it cannot fit a mean at all.
-    drift : bool
-        Whether a drift (a mean with one difference) is available.
-    native_transform : bool
-        Whether the library can apply a Box-Cox/log transform itself (forecastaudit
-        transforms once before any estimator, so this is informational).
-    exog : bool
-        Whether exogenous regressors are accepted.
-    order_search : bool
-        Whether the library offers an automatic order search.
-    intervals : bool
-        Whether the library gives forecast intervals.
-    fixed_params : bool
-        Whether the adapter can filter and forecast at given canonical parameters (used to
-        check the reference predictor against a general-purpose Kalman filter).
+        differenced series). Empty when it cannot fit a mean at all. A spec with a mean and
+        another d + D is ``unsupported``.
+    regressors : bool
+        Whether regressors (regression with ARIMA errors) are accepted. A spec with
+        regressors and an adapter without this is ``unsupported``.
+    forecast : bool
+        Whether the adapter forecasts, with intervals, from its own fit
+        (:meth:`EstimatorAdapter._forecast`). Without it no forecast is asked for.
+    own_loglike : bool
+        Whether the adapter can evaluate the library's own log-likelihood, with the same
+        initialisation and conditioning as its fit, at given canonical parameters
+        (:meth:`EstimatorAdapter._loglike_at`): this separates "its optimiser stopped short"
+        from "its objective differs".
+    forecast_at_params : bool
+        Whether the adapter can filter and forecast at given canonical parameters
+        (:meth:`EstimatorAdapter._forecast_at`), used to check the reference predictor
+        against a general-purpose Kalman filter.
     """
 
     mean_differences: frozenset[int] = frozenset()
-    drift: bool = False
-    native_transform: bool = False
-    exog: bool = False
-    order_search: bool = False
-    intervals: bool = True
-    fixed_params: bool = False
+    regressors: bool = False
+    forecast: bool = True
+    own_loglike: bool = False
+    forecast_at_params: bool = False
 
     def to_dict(self) -> dict[str, Any]:
         """JSON-ready form."""
         return {
             "mean_differences": sorted(self.mean_differences),
-            "drift": self.drift,
-            "native_transform": self.native_transform,
-            "exog": self.exog,
-            "order_search": self.order_search,
-            "intervals": self.intervals,
-            "fixed_params": self.fixed_params,
+            "regressors": self.regressors,
+            "forecast": self.forecast,
+            "own_loglike": self.own_loglike,
+            "forecast_at_params": self.forecast_at_params,
         }
+
+
+@dataclass(frozen=True)
+class FitRequest:
+    """What an adapter is asked to fit: plain values only, so a request crosses processes.
+
+    Attributes
+    ----------
+    y : numpy.ndarray
+        The series after the transform (the adapter gets its own copy).
+    spec : ModelSpec
+        The model to fit.
+    """
+
+    y: np.ndarray
+    spec: ModelSpec
+
+    @property
+    def n_w(self) -> int:
+        """Observations left after differencing."""
+        return len(self.y) - self.spec.lost_to_differencing
 
 
 @dataclass
@@ -81,8 +105,11 @@ class FitOutput:
         The library's own names and values, untouched.
     sigma2_reported : float
         The innovation variance as the library reports it.
+    sigma2_kind : {"maximum-likelihood", "df-adjusted"}
+        Whether the reported variance is the maximum-likelihood one or a
+        degrees-of-freedom-adjusted one.
     sigma2_definition : str
-        What the reported variance is (``"maximum likelihood"`` or the divisor used).
+        What the reported variance is, in plain words (the divisor used).
     sigma2_ml : float
         The maximum-likelihood variance, converted where the library reports another one.
     loglike : float
@@ -99,8 +126,13 @@ class FitOutput:
         The optimiser's own verdict (None when the library gives none).
     optimizer : dict
         The optimiser's message, code, iterations, as the library reports them.
-    options : dict
-        Every option used: those set from the spec and the library defaults, resolved.
+    options : dict of str to dict
+        Every option used, resolved (those set from the spec and the library defaults), in
+        one namespace per library: ``{"pmdarima": {...}, "statsmodels": {...}}``, the
+        called library first.
+    extra_terms : dict
+        Terms the library fitted that the spec did not ask for, under their native names
+        (the audit then reports that a different model was fitted).
     conversions : list of str
         Conversions made on the way to the canonical convention, in plain words.
     notes : list of str
@@ -117,6 +149,7 @@ class FitOutput:
     params: dict[str, float]
     native_params: dict[str, float]
     sigma2_reported: float
+    sigma2_kind: Sigma2Kind
     sigma2_definition: str
     sigma2_ml: float
     loglike: float
@@ -126,7 +159,8 @@ class FitOutput:
     criteria: dict[str, float]
     converged: bool | None
     optimizer: dict[str, Any]
-    options: dict[str, Any]
+    options: dict[str, dict[str, Any]]
+    extra_terms: dict[str, float] = field(default_factory=dict)
     conversions: list[str] = field(default_factory=list)
     notes: list[str] = field(default_factory=list)
     fitted_model: str | None = None
@@ -203,39 +237,44 @@ def _forecast_from(key: str, steps: int, levels: tuple[float, ...], call: _Captu
 
 
 class LibraryBound:
-    """Version and availability of the library an adapter calls (``package``, ``module``)."""
+    """Version and availability of the library an adapter calls (``package``, ``module``).
+
+    Both are asked of the adapter instance, not its class: an adapter that runs the library
+    elsewhere (another environment, another machine) answers for where it runs.
+    """
 
     package: ClassVar[str]
     module: ClassVar[str]
 
-    @classmethod
-    def version(cls) -> str | None:
+    def version(self) -> str | None:
         """Installed version of the package, or None when it is not installed."""
         try:
-            return importlib.metadata.version(cls.package)
+            return importlib.metadata.version(self.package)
         except importlib.metadata.PackageNotFoundError:
             return None
 
-    @classmethod
-    def availability(cls) -> str | None:
+    def availability(self) -> str | None:
         """None when the library imports; otherwise the reason it does not."""
         try:
-            importlib.import_module(cls.module)
+            importlib.import_module(self.module)
         except Exception as exc:  # any import failure makes the adapter unavailable
-            return f"{cls.module} could not be imported ({type(exc).__name__}: {exc})"
+            return f"{self.module} could not be imported ({type(exc).__name__}: {exc})"
         return None
 
 
 class EstimatorAdapter(LibraryBound, ABC):
     """Base class of the estimator adapters.
 
-    Subclasses set the class attributes and implement :meth:`_fit`. Everything else
-    (availability, support checks against the declared capabilities, timing, capture of
-    warnings and printed output, conversion of exceptions into a failed estimate) is done
-    here once.
+    Subclasses set the class attributes and implement :meth:`_fit` (and, where their
+    capabilities say so, :meth:`_forecast`, :meth:`_loglike_at`, :meth:`_forecast_at`).
+    Everything else (availability, support checks against the declared capabilities,
+    timing, capture of warnings and printed output, conversion of exceptions into a failed
+    estimate) is done here once.
 
     Attributes
     ----------
+    kind : str
+        ``"fit"`` (registry kind).
     key : str
         Estimator key used in reports and by callers.
     engine : str
@@ -247,7 +286,7 @@ class EstimatorAdapter(LibraryBound, ABC):
     description : str
         One line: which class of which library is called.
     capabilities : Capabilities
-        What the estimator can fit.
+        What the adapter can do; every field is enforced here.
     """
 
     kind: ClassVar[str] = "fit"
@@ -259,99 +298,98 @@ class EstimatorAdapter(LibraryBound, ABC):
     capabilities: ClassVar[Capabilities]
 
     # ------------------------------------------------------------------ declared checks
-    @classmethod
-    def unsupported_reason(cls, spec: ModelSpec) -> str | None:
+    def unsupported_reason(self, spec: ModelSpec) -> str | None:
         """None when the declared capabilities cover ``spec``; otherwise why not."""
-        caps = cls.capabilities
+        caps = self.capabilities
         if spec.mean and spec.n_differences not in caps.mean_differences:
             return (
-                f"{cls.description} cannot estimate a mean of the differenced series with "
+                f"{self.description} cannot estimate a mean of the differenced series with "
                 f"d + D = {spec.n_differences} (it can with d + D in "
                 f"{sorted(caps.mean_differences) or 'no case'})."
             )
-        if spec.exog and not caps.exog:
-            return f"{cls.description} does not take exogenous regressors."
+        if spec.exog and not caps.regressors:
+            return f"{self.description} does not take regressors."
         return None
 
-    # ------------------------------------------------------------------ the fit
-    def fit(self, y: np.ndarray, spec: ModelSpec) -> Estimate:
-        """Fit ``spec`` to ``y`` (already transformed) and return the canonical estimate.
-
-        Never raises for a library failure: the estimate's status says what happened.
-        """
-        base = {
+    def _base(self, spec: ModelSpec) -> dict[str, Any]:
+        return {
             "key": self.key,
             "engine": self.engine,
             "package": self.package,
             "version": self.version(),
             "spec": spec,
         }
+
+    # ------------------------------------------------------------------ the fit
+    def fit(self, y: np.ndarray | FitRequest, spec: ModelSpec | None = None) -> Estimate:
+        """Fit a request (or ``spec`` to ``y``, already transformed); the canonical estimate.
+
+        Never raises for a library failure: the estimate's status says what happened.
+        """
+        request = y if isinstance(y, FitRequest) else FitRequest(np.asarray(y), spec)
+        spec = request.spec
+        base = self._base(spec)
         missing = self.availability()
         if missing is not None:
             return Estimate(**base, status="unavailable", reason=missing)
         unsupported = self.unsupported_reason(spec)
         if unsupported is not None:
             return Estimate(**base, status="unsupported", reason=unsupported)
-        if len(y) <= spec.lost_to_differencing:
+        if request.n_w <= 0:
             return Estimate(
                 **base,
                 status="failed",
                 reason=(
-                    f"the series ({len(y)} observations) is no longer than the "
+                    f"the series ({len(request.y)} observations) is no longer than the "
                     f"{spec.lost_to_differencing} used up by differencing; nothing was fitted"
                 ),
             )
-
-        call = _run_captured(self._fit, np.array(y, dtype=float, copy=True), spec)
-        result, captured, printed, seconds = call.result, call.warnings, call.output, call.seconds
+        own = FitRequest(np.array(request.y, dtype=float, copy=True), spec)
+        call = _run_captured(self._fit, own)
+        result = call.result
         if call.error or result is None:
             return Estimate(
                 **base,
                 status="failed",
                 reason=call.error or "the fit returned nothing",
-                warnings=captured,
-                output=(printed + "\n" + call.trace).strip(),
-                seconds=seconds,
+                warnings=call.warnings,
+                output=(call.output + "\n" + call.trace).strip(),
+                seconds=call.seconds,
             )
-        n_w = len(y) - spec.lost_to_differencing
-        return self._estimate_from(result, base, spec, n_w, captured, printed, seconds)
+        return self._estimate_from(result, base, spec, request.n_w, call)
 
     def _estimate_from(
-        self,
-        result: FitOutput,
-        base: dict[str, Any],
-        spec: ModelSpec,
-        n_w: int,
-        captured: list[CapturedWarning],
-        printed: str,
-        seconds: float,
+        self, result: FitOutput, base: dict[str, Any], spec: ModelSpec, n_w: int, call: _Captured
     ) -> Estimate:
         names = coefficient_names(spec)
+        native_params = {str(k_): float(v) for k_, v in result.native_params.items()}
         missing = [name for name in names if name not in result.params]
         if missing:
             return Estimate(
                 **base,
                 status="failed",
                 reason=f"the fit returned no value for {', '.join(missing)}",
-                native_params={str(k_): float(v) for k_, v in result.native_params.items()},
-                warnings=captured,
-                output=printed,
-                seconds=seconds,
+                native_params=native_params,
+                warnings=call.warnings,
+                output=call.output,
+                seconds=call.seconds,
             )
         params = {name: float(result.params[name]) for name in names}
         params["sigma2"] = float(result.sigma2_ml)
         ordered = {name: params[name] for name in parameter_names(spec)}
-        extra = sorted(name[len("extra:") :] for name in result.params if name.startswith("extra:"))
+        extra = {str(k_): float(v) for k_, v in result.extra_terms.items()}
         fitted_model = result.fitted_model
         if extra and fitted_model is None:
-            fitted_model = f"{spec} with extra terms: {', '.join(extra)}"
+            fitted_model = f"{spec} with extra terms: {', '.join(sorted(extra))}"
         k = len(names) + 1
         return Estimate(
             **base,
             status="ok",
             params=ordered,
-            native_params={str(k_): float(v) for k_, v in result.native_params.items()},
+            native_params=native_params,
+            extra_terms=extra,
             sigma2_reported=float(result.sigma2_reported),
+            sigma2_kind=result.sigma2_kind,
             sigma2_definition=result.sigma2_definition,
             loglike_native=float(result.loglike),
             loglike_definition=result.loglike_definition,
@@ -363,28 +401,37 @@ class EstimatorAdapter(LibraryBound, ABC):
             k=k,
             converged=result.converged,
             optimizer=result.optimizer,
-            options=result.options,
+            options={str(ns): dict(values) for ns, values in result.options.items()},
             conversions=list(result.conversions),
             notes=list(result.notes),
             fitted_model=fitted_model,
             overridden_defaults=dict(result.overridden_defaults),
-            warnings=captured,
-            output=printed,
-            seconds=seconds,
+            warnings=call.warnings,
+            output=call.output,
+            seconds=call.seconds,
             native=result.native,
         )
 
     @abstractmethod
-    def _fit(self, y: np.ndarray, spec: ModelSpec) -> FitOutput:
-        """Translate the spec, call the library on ``y``, translate the result."""
+    def _fit(self, request: FitRequest) -> FitOutput:
+        """Translate the spec, call the library on ``request.y``, translate the result."""
 
     # ------------------------------------------------------------------ forecasts
     def forecast(self, estimate: Estimate, steps: int, levels: tuple[float, ...]) -> Forecast:
         """Forecast ``steps`` ahead from a fitted estimate, with intervals at ``levels`` (%).
 
-        Uses the library's own forecast and interval method, as its users would. Never
-        raises for a library failure; the forecast's status says what happened.
+        Uses the library's own forecast and interval method, as its users would; needs the
+        library's fitted object, so it runs where the fit ran. Never raises for a library
+        failure; the forecast's status says what happened.
         """
+        if not self.capabilities.forecast:
+            return Forecast(
+                key=self.key,
+                status="failed",
+                steps=steps,
+                levels=levels,
+                reason=f"{self.description} does not forecast (declared in its capabilities)",
+            )
         if not estimate.ok or estimate.native is None:
             return Forecast(
                 key=self.key,
@@ -396,6 +443,28 @@ class EstimatorAdapter(LibraryBound, ABC):
         call = _run_captured(self._forecast, estimate.native, steps, levels)
         return _forecast_from(self.key, steps, levels, call)
 
+    def loglike_at(self, request: FitRequest, params: dict[str, float]) -> float:
+        """The library's own log-likelihood of ``request`` at canonical ``params``.
+
+        Same initialisation, conditioning and scale as the library's fit (``own_loglike``
+        adapters only). NaN when the library cannot evaluate it there.
+
+        Raises
+        ------
+        EstimatorError
+            When the adapter does not declare ``own_loglike``.
+        """
+        if not self.capabilities.own_loglike:
+            raise EstimatorError(
+                f"{self.key} cannot evaluate its own likelihood at given parameters."
+            )
+        call = _run_captured(
+            self._loglike_at, FitRequest(np.array(request.y, dtype=float), request.spec), params
+        )
+        if call.error or call.result is None:
+            return math.nan
+        return float(call.result)
+
     def forecast_at(
         self,
         y: np.ndarray,
@@ -404,8 +473,8 @@ class EstimatorAdapter(LibraryBound, ABC):
         steps: int,
         levels: tuple[float, ...],
     ) -> Forecast:
-        """Filter ``y`` at given canonical parameters and forecast (``fixed_params`` only)."""
-        if not self.capabilities.fixed_params:
+        """Filter ``y`` at given canonical parameters and forecast (``forecast_at_params``)."""
+        if not self.capabilities.forecast_at_params:
             raise EstimatorError(f"{self.key} cannot forecast at given parameters.")
         call = _run_captured(
             self._forecast_at, np.array(y, dtype=float, copy=True), spec, params, steps, levels
@@ -415,6 +484,10 @@ class EstimatorAdapter(LibraryBound, ABC):
     def _forecast(self, native: Any, steps: int, levels: tuple[float, ...]) -> ForecastOutput:
         """Forecast with the library from its fitted object ``native``."""
         raise NotImplementedError(f"{self.key} does not forecast")
+
+    def _loglike_at(self, request: FitRequest, params: dict[str, float]) -> float:
+        """The library's own log-likelihood at canonical ``params`` (``own_loglike`` only)."""
+        raise NotImplementedError(f"{self.key} cannot evaluate its own likelihood")
 
     def _forecast_at(
         self,

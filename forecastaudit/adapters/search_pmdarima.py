@@ -290,7 +290,8 @@ def result_from_model(
         constant_rule=constant_rule(options["with_intercept"]),
         stepwise=bool(options["stepwise"]),
         bounds=search_bounds(options),
-        options={**options, "_search_seconds": seconds},
+        options=options,
+        seconds=seconds,
         notes=notes,
         native=native,
     )

@@ -59,6 +59,9 @@ class SearchResult:
         Every option of the library call, resolved.
     notes : list of str
         Remarks on how the library decided (in plain words).
+    seconds : float, optional
+        Wall time of the library's search alone, when the adapter did more work after it
+        (recomputing the differencing tests); None: the whole call is the search.
     native : object
         The library's fitted object (memory only).
     """
@@ -78,6 +81,7 @@ class SearchResult:
     bounds: dict[str, Any]
     options: dict[str, Any]
     notes: list[str] = field(default_factory=list)
+    seconds: float | None = None
     native: Any = None
 
 
@@ -151,7 +155,7 @@ class SearchAdapter(LibraryBound, ABC):
                 seconds=call.seconds,
             )
         result: SearchResult = call.result
-        seconds = float(result.options.pop("_search_seconds", call.seconds))
+        seconds = float(call.seconds if result.seconds is None else result.seconds)
         spec = ModelSpec(
             order=result.order,
             seasonal=result.seasonal,
@@ -184,8 +188,8 @@ class SearchAdapter(LibraryBound, ABC):
     def _run(self, y: np.ndarray, m: int, settings: SearchSettings) -> SearchResult:
         """Translate the settings, call the library's search, translate the result.
 
-        An adapter that recomputes the differencing tests after the search stores the
-        search's own wall time in ``options["_search_seconds"]`` (removed by :meth:`run`).
+        An adapter that recomputes the differencing tests after the search gives the
+        search's own wall time in :attr:`SearchResult.seconds`.
         """
 
 

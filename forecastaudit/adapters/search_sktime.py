@@ -62,8 +62,7 @@ class SktimeStatsforecastSearch(SearchAdapter):
     module = "sktime.forecasting.statsforecast"
     description = "sktime StatsForecastAutoARIMA (wraps statsforecast AutoARIMA)"
 
-    @classmethod
-    def availability(cls) -> str | None:
+    def availability(self) -> str | None:
         """Both sktime's wrapper and statsforecast itself must import."""
         missing = super().availability()
         if missing is not None:

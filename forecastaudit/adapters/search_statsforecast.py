@@ -221,7 +221,8 @@ def result_from_fit(
         constant_rule=constant_rule(allow_drift, allow_mean),
         stepwise=bool(options["stepwise"]),
         bounds={k: options.get(k) for k in ("max_p", "max_q", "max_P", "max_Q", "max_order")},
-        options={**options, "_search_seconds": seconds},
+        options=options,
+        seconds=seconds,
         notes=notes,
         native=native,
     )

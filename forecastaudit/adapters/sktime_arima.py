@@ -15,10 +15,10 @@ from forecastaudit.adapters.protocol import (
     Capabilities,
     EstimatorAdapter,
     FitOutput,
+    FitRequest,
     ForecastOutput,
 )
 from forecastaudit.adapters.registry import register_estimator
-from forecastaudit.spec import ModelSpec
 
 
 @register_estimator
@@ -32,16 +32,13 @@ class SktimeArima(EstimatorAdapter):
     description = "sktime ARIMA forecaster"
     capabilities = Capabilities(
         mean_differences=frozenset(range(0, 6)),
-        drift=True,
-        native_transform=False,
-        exog=True,
-        order_search=True,
-        intervals=True,
     )
 
-    def _fit(self, y: np.ndarray, spec: ModelSpec) -> FitOutput:
+    def _fit(self, request: FitRequest) -> FitOutput:
         import pandas as pd
         from sktime.forecasting.arima import ARIMA
+
+        y, spec = request.y, request.spec
 
         forecaster = ARIMA(
             order=spec.order,
@@ -56,7 +53,7 @@ class SktimeArima(EstimatorAdapter):
             result,
             spec,
             "intercept",
-            options={f"sktime.{k}": v for k, v in forecaster.get_params().items()},
+            options={"sktime": dict(forecaster.get_params())},
             criteria=criteria,
             notes=["sktime reports statsmodels' aic, aicc and bic (not pmdarima's aicc)"],
             overridden_defaults={} if spec.mean else {"with_intercept": True},

@@ -20,11 +20,11 @@ from forecastaudit.adapters.protocol import (
     Capabilities,
     EstimatorAdapter,
     FitOutput,
+    FitRequest,
     ForecastOutput,
 )
 from forecastaudit.adapters.registry import register_estimator
 from forecastaudit.conventions import df_adjusted_to_ml_sigma2, trend_scale
-from forecastaudit.spec import ModelSpec
 
 _NAME = re.compile(r"^(ar|ma|sar|sma)(\d+)$")
 # scipy.optimize result status codes, as statsforecast stores them in model_["code"].
@@ -47,15 +47,12 @@ class StatsforecastArima(EstimatorAdapter):
     description = "statsforecast ARIMA"
     capabilities = Capabilities(
         mean_differences=frozenset({0, 1}),
-        drift=True,
-        native_transform=True,
-        exog=True,
-        order_search=True,
-        intervals=True,
     )
 
-    def _fit(self, y: np.ndarray, spec: ModelSpec) -> FitOutput:
+    def _fit(self, request: FitRequest) -> FitOutput:
         from statsforecast.models import ARIMA
+
+        y, spec = request.y, request.spec
 
         s = spec.n_differences
         model = ARIMA(
@@ -69,6 +66,7 @@ class StatsforecastArima(EstimatorAdapter):
         fit = model.model_
         coef = {str(k): float(v) for k, v in fit["coef"].items()}
         params: dict[str, float] = {}
+        extra: dict[str, float] = {}
         conversions: list[str] = []
         for name, value in coef.items():
             match = _NAME.match(name)
@@ -77,7 +75,7 @@ class StatsforecastArima(EstimatorAdapter):
                 lag = i * spec.m if kind.startswith("s") else i
                 params[f"{kind}_lag{lag}"] = value
             elif not spec.mean or name not in {"intercept", "drift"}:
-                params[f"extra:{name}"] = value  # a term the spec did not ask for
+                extra[name] = value  # a term the spec did not ask for
         if spec.mean:
             if s == 0:
                 params["mu"] = coef["intercept"]
@@ -101,6 +99,7 @@ class StatsforecastArima(EstimatorAdapter):
             params=params,
             native_params=coef,
             sigma2_reported=sigma2_reported,
+            sigma2_kind="df-adjusted",
             sigma2_definition=f"SSR / (n_w - {n_coef}), degrees-of-freedom adjusted",
             sigma2_ml=sigma2_ml,
             loglike=float(fit["loglik"]),
@@ -114,7 +113,8 @@ class StatsforecastArima(EstimatorAdapter):
             criteria={"aic": fit["aic"], "aicc": fit["aicc"], "bic": fit["bic"]},
             converged=code == 0,
             optimizer={"code": code, "message": _CODES.get(code, "unknown status")},
-            options=options,
+            options={"statsforecast": options},
+            extra_terms=extra,
             conversions=conversions,
             overridden_defaults=overridden,
             native=model,

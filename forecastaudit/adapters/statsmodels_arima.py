@@ -9,13 +9,12 @@ adds a constant by default when d + D = 0.
 
 from __future__ import annotations
 
-import numpy as np
-
 from forecastaudit.adapters import _statespace
 from forecastaudit.adapters.protocol import (
     Capabilities,
     EstimatorAdapter,
     FitOutput,
+    FitRequest,
     ForecastOutput,
 )
 from forecastaudit.adapters.registry import register_estimator
@@ -43,16 +42,12 @@ class StatsmodelsArima(EstimatorAdapter):
     description = "statsmodels tsa.arima ARIMA"
     capabilities = Capabilities(
         mean_differences=frozenset(range(0, 6)),
-        drift=True,
-        native_transform=False,
-        exog=True,
-        order_search=False,
-        intervals=True,
     )
 
-    def _fit(self, y: np.ndarray, spec: ModelSpec) -> FitOutput:
+    def _fit(self, request: FitRequest) -> FitOutput:
         from statsmodels.tsa.arima.model import ARIMA
 
+        y, spec = request.y, request.spec
         model = ARIMA(
             y,
             order=spec.order,
@@ -61,9 +56,14 @@ class StatsmodelsArima(EstimatorAdapter):
         )
         result = model.fit()
         mean_kind = "mean" if spec.n_differences == 0 else "trend"
+        # The trend columns come first among the model's regression names ("const", or the
+        # trend on t^s, which statsmodels calls "x1" like a first regressor).
+        constant = next(iter(model.exog_names or [None])) if spec.mean else None
         # The library adds a constant by default when d + D = 0; the spec decides instead.
         overridden = {"trend": "c"} if spec.n_differences == 0 and not spec.mean else {}
-        return _statespace.to_fit_output(result, spec, mean_kind, overridden_defaults=overridden)
+        return _statespace.to_fit_output(
+            result, spec, mean_kind, constant_name=constant, overridden_defaults=overridden
+        )
 
     def _forecast(self, native, steps: int, levels: tuple[float, ...]) -> ForecastOutput:  # type: ignore[no-untyped-def]
         return _statespace.statespace_forecast(native, steps, levels)

@@ -14,6 +14,7 @@ from forecastaudit.adapters.protocol import (
     Capabilities,
     EstimatorAdapter,
     FitOutput,
+    FitRequest,
     ForecastOutput,
 )
 from forecastaudit.adapters.registry import register_estimator
@@ -31,12 +32,8 @@ class StatsmodelsSarimax(EstimatorAdapter):
     description = "statsmodels SARIMAX"
     capabilities = Capabilities(
         mean_differences=frozenset(range(0, 6)),
-        drift=True,
-        native_transform=False,
-        exog=True,
-        order_search=False,
-        intervals=True,
-        fixed_params=True,
+        own_loglike=True,
+        forecast_at_params=True,
     )
 
     @staticmethod
@@ -50,9 +47,15 @@ class StatsmodelsSarimax(EstimatorAdapter):
             trend="c" if spec.mean else "n",
         )
 
-    def _fit(self, y: np.ndarray, spec: ModelSpec) -> FitOutput:
-        result = self._model(y, spec).fit(disp=False)
-        return _statespace.to_fit_output(result, spec, "intercept")
+    def _fit(self, request: FitRequest) -> FitOutput:
+        result = self._model(request.y, request.spec).fit(disp=False)
+        return _statespace.to_fit_output(result, request.spec, "intercept")
+
+    def _loglike_at(self, request: FitRequest, params: dict[str, float]) -> float:
+        # The same model object as the fit (same diffuse prior and burn-in): its own objective.
+        model = self._model(request.y, request.spec)
+        vector = _statespace.native_vector(list(model.param_names), request.spec, params)
+        return float(model.loglike(vector))
 
     def _forecast(self, native, steps: int, levels: tuple[float, ...]) -> ForecastOutput:  # type: ignore[no-untyped-def]
         return _statespace.statespace_forecast(native, steps, levels)

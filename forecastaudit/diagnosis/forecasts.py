@@ -186,7 +186,7 @@ def forecast_findings(
         if abs(worst_ratio - 1.0) > tol.interval_width_rtol:
             e = estimates.get(key)
             explained = ""
-            if e is not None and e.ok and "maximum likelihood" not in e.sigma2_definition:
+            if e is not None and e.ok and e.sigma2_kind != "maximum-likelihood":
                 df_part = math.sqrt(fc.sigma2_used / e.sigma2)
                 explained = (
                     f" Its intervals use sigma2 defined as {e.sigma2_definition}, which alone "

@@ -10,7 +10,6 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from forecastaudit.adapters.registry import get_adapter
 from forecastaudit.diagnosis.forecasts import OriginalScaleForecast, back_transform, point_kind
 from forecastaudit.diagnosis.metrics import (
     diebold_mariano,
@@ -19,6 +18,9 @@ from forecastaudit.diagnosis.metrics import (
     point_accuracy,
 )
 from forecastaudit.estimate import Estimate, Forecast
+from forecastaudit.fitting import DEFAULT_TIME_LIMIT, fit_tasks, run_fits
+from forecastaudit.run import Backend
+from forecastaudit.series import prepare_series
 from forecastaudit.spec import ModelSpec
 
 
@@ -81,6 +83,9 @@ def run_holdout(
     levels: tuple[float, ...],
     reference_forecaster: ReferenceForecaster | None = None,
     reference_key: str = "reference",
+    *,
+    backend: Backend | int | None = None,
+    time_limit: float | None = DEFAULT_TIME_LIMIT,
     progress: bool = False,
 ) -> HoldoutResult:
     """Fit on the training part and forecast the held-out part, at each origin.
@@ -94,8 +99,12 @@ def run_holdout(
         The series on the original scale.
     reference_forecaster : callable, optional
         ``f(train_transformed, estimates, horizon) -> Forecast`` for the reference optimum.
+    backend : Backend or int, optional
+        Where the fits run (see :func:`forecastaudit.fitting.run_fits`).
+    time_limit : float, optional
+        Seconds one fit may take where the backend can stop it.
     progress : bool
-        Show a progress bar (tqdm) over the origins.
+        Show a progress bar (tqdm) over the fits.
     """
     n = values.size
     starts = [n - horizon * (origins - i) for i in range(origins)]
@@ -103,30 +112,35 @@ def run_holdout(
     actuals: list[np.ndarray] = []
     scales: list[float] = []
     failures: dict[str, str] = {}
-    from forecastaudit.series import prepare_series
-
-    origins_iter: Sequence[int] = starts
-    if progress:
-        from tqdm.auto import tqdm
-
-        origins_iter = tqdm(starts, desc="holdout origins", unit="origin")
-    for start in origins_iter:
-        train, test = values[:start], values[start : start + horizon]
-        train_t = prepare_series(train, period=spec.period).transformed(spec)
+    # Every (origin, estimator) fit is one unit on the execution seam, all in one batch.
+    trains = [
+        prepare_series(values[:start], period=spec.period).transformed(spec) for start in starts
+    ]
+    tasks = [
+        task
+        for start, train_t in zip(starts, trains, strict=True)
+        for task in fit_tasks(
+            keys, train_t, spec, steps=horizon, levels=levels, label=f"origin {start}"
+        )
+    ]
+    outcomes = run_fits(
+        tasks, backend, time_limit=time_limit, progress="holdout fits" if progress else None
+    )
+    for i, (start, train_t) in enumerate(zip(starts, trains, strict=True)):
         estimates: dict[str, Estimate] = {}
         forecasts: dict[str, OriginalScaleForecast] = {}
-        for key in keys:
-            adapter = get_adapter(key)
-            e = adapter.fit(train_t, spec)
+        for j, key in enumerate(keys):
+            outcome = outcomes[i * len(keys) + j]
+            e, fc = outcome.estimate, outcome.forecast
             estimates[key] = e
             if not e.ok:
                 # Unavailable and unsupported estimators are reported once, by the main fit.
-                if e.status == "failed":
-                    failures.setdefault(key, f"fit failed at origin {start}: {e.reason}")
+                if e.status in ("failed", "timed-out"):
+                    failures.setdefault(key, f"fit {e.status} at origin {start}: {e.reason}")
                 continue
-            fc = adapter.forecast(e, horizon, levels)
-            if not fc.ok:
-                failures.setdefault(key, f"forecast failed at origin {start}: {fc.reason}")
+            if fc is None or not fc.ok:
+                reason = fc.reason if fc is not None else "no forecast was produced"
+                failures.setdefault(key, f"forecast failed at origin {start}: {reason}")
                 continue
             forecasts[key] = back_transform(fc, spec)
         if reference_forecaster is not None:
@@ -134,8 +148,8 @@ def run_holdout(
             if ref is not None and ref.ok:
                 forecasts[reference_key] = back_transform(ref, spec)
         per_origin.append(forecasts)
-        actuals.append(test)
-        scales.append(mase_scale(train, spec.m))
+        actuals.append(values[start : start + horizon])
+        scales.append(mase_scale(values[:start], spec.m))
 
     complete = [k for k in [*keys, reference_key] if all(k in fc for fc in per_origin)]
     rows = {}

@@ -7,7 +7,7 @@ from typing import Any
 
 import pandas as pd
 
-from forecastaudit.jsonutil import _plain
+from forecastaudit.jsonutil import to_plain as _plain
 from forecastaudit.spec import ModelSpec
 
 

@@ -1,0 +1,168 @@
+"""The unit of work of an audit, run on the execution seam: one adapter on one series.
+
+A unit fits the adapter to the series, forecasts from that fit with the library's own
+method, keeps the in-sample residuals, and evaluates the library's own likelihood at any
+given parameters, all where the fit ran: the library's objects never leave that process;
+plain :class:`~forecastaudit.estimate.Estimate` and
+:class:`~forecastaudit.estimate.Forecast` values come back. A unit that raises outside the
+adapter's capture, times out or loses its worker still gives an estimate, with the status
+``failed`` or ``timed-out`` and the reason, so the audit of the other adapters goes on.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from forecastaudit.adapters.protocol import FitRequest
+from forecastaudit.adapters.registry import adapter_class
+from forecastaudit.estimate import Estimate, Forecast
+from forecastaudit.run import Backend, Outcome, make_backend
+from forecastaudit.spec import ModelSpec
+
+__all__ = ["FitOutcome", "FitTask", "fit_unit", "run_fits"]
+
+#: Default time limit of one unit, in seconds, where the backend can enforce one.
+DEFAULT_TIME_LIMIT = 600.0
+
+
+@dataclass(frozen=True)
+class FitTask:
+    """One adapter on one series.
+
+    Attributes
+    ----------
+    key : str
+        The adapter's registry key.
+    request : FitRequest
+        The series (transformed) and the spec.
+    steps : int
+        Forecast steps (0: no forecast).
+    levels : tuple of float
+        Interval levels in percent.
+    loglike_at : tuple of dict
+        Canonical parameter sets at which to evaluate the library's own likelihood
+        (adapters declaring ``own_loglike`` only).
+    label : str
+        What the progress bar and messages call this unit.
+    """
+
+    key: str
+    request: FitRequest
+    steps: int = 0
+    levels: tuple[float, ...] = ()
+    loglike_at: tuple[Mapping[str, float], ...] = ()
+    label: str = ""
+    adapter: type | None = field(default=None, compare=False)
+
+
+@dataclass
+class FitOutcome:
+    """What a unit hands back: plain values only."""
+
+    estimate: Estimate
+    forecast: Forecast | None = None
+    own_loglike: tuple[float, ...] = ()
+
+
+def fit_unit(task: FitTask) -> FitOutcome:
+    """Run one unit (module level, so worker processes can import it)."""
+    cls = task.adapter if task.adapter is not None else adapter_class(task.key)
+    adapter = cls()
+    estimate = adapter.fit(task.request)
+    forecast = None
+    if estimate.ok and task.steps > 0 and adapter.capabilities.forecast:
+        forecast = adapter.forecast(estimate, task.steps, task.levels)
+    own: tuple[float, ...] = ()
+    if estimate.ok and task.loglike_at and adapter.capabilities.own_loglike:
+        own = tuple(adapter.loglike_at(task.request, dict(p)) for p in task.loglike_at)
+    estimate.native = None  # the library's object stays here
+    return FitOutcome(estimate=estimate, forecast=forecast, own_loglike=own)
+
+
+def _stand_in(task: FitTask, outcome: Outcome) -> FitOutcome:
+    """An estimate for a unit that gave no value (timed out, raised, lost its worker)."""
+    cls = task.adapter if task.adapter is not None else adapter_class(task.key)
+    status = "timed-out" if outcome.status == "timed-out" else "failed"
+    version: str | None
+    try:
+        version = cls().version()
+    except Exception:  # the adapter's own failure is what is being reported
+        version = None
+    estimate = Estimate(
+        key=task.key,
+        engine=getattr(cls, "engine", task.key),
+        package=getattr(cls, "package", ""),
+        version=version,
+        status=status,
+        reason=outcome.error,
+        spec=task.request.spec,
+        output=outcome.trace,
+        seconds=outcome.seconds,
+    )
+    return FitOutcome(estimate=estimate)
+
+
+def run_fits(
+    tasks: Sequence[FitTask],
+    backend: Backend | int | None = None,
+    *,
+    time_limit: float | None = DEFAULT_TIME_LIMIT,
+    progress: str | bool | None = None,
+) -> list[FitOutcome]:
+    """Run units on the execution seam; one outcome per task, in order.
+
+    Parameters
+    ----------
+    tasks : sequence of FitTask
+    backend : Backend or int, optional
+        An execution backend, or a number of local workers (None or 1: in this process).
+    time_limit : float, optional
+        Seconds one unit may take where the backend can enforce it (local processes);
+        past it the unit is stopped and its estimate is ``timed-out``.
+    progress : str or bool, optional
+        A progress-bar description (or True), or None for none.
+    """
+    owned = not isinstance(backend, Backend)
+    runner = make_backend(backend)
+    try:
+        outcomes = runner.map(
+            fit_unit,
+            list(tasks),
+            labels=[t.label or t.key for t in tasks],
+            time_limit=time_limit if runner.enforces_time_limit else None,
+            progress=progress,
+        )
+    finally:
+        if owned:
+            runner.close()
+    return [
+        o.value if o.ok and isinstance(o.value, FitOutcome) else _stand_in(t, o)
+        for t, o in zip(tasks, outcomes, strict=True)
+    ]
+
+
+def fit_tasks(
+    keys: Sequence[str],
+    y: np.ndarray,
+    spec: ModelSpec,
+    *,
+    steps: int = 0,
+    levels: tuple[float, ...] = (),
+    label: str = "",
+) -> list[FitTask]:
+    """One task per adapter key on the same series (the adapter classes resolved here)."""
+    request = FitRequest(np.asarray(y, dtype=float), spec)
+    return [
+        FitTask(
+            key=key,
+            request=request,
+            steps=steps,
+            levels=levels,
+            label=f"{key} {label}".strip(),
+            adapter=adapter_class(key),
+        )
+        for key in keys
+    ]
