@@ -376,6 +376,21 @@ class EstimatorAdapter(LibraryBound, ABC):
             )
         params = {name: float(result.params[name]) for name in names}
         params["sigma2"] = float(result.sigma2_ml)
+        not_finite = [name for name, value in params.items() if not math.isfinite(value)]
+        if not_finite:
+            # A library that reports success with NaN or infinite values has not fitted.
+            return Estimate(
+                **base,
+                status="failed",
+                reason=(
+                    "the library reported a fit but returned non-finite values for "
+                    f"{', '.join(not_finite)}; nothing usable was estimated"
+                ),
+                native_params=native_params,
+                warnings=call.warnings,
+                output=call.output,
+                seconds=call.seconds,
+            )
         ordered = {name: params[name] for name in parameter_names(spec)}
         extra = {str(k_): float(v) for k_, v in result.extra_terms.items()}
         fitted_model = result.fitted_model

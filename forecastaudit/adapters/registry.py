@@ -30,6 +30,7 @@ __all__ = [
     "get_adapter",
     "get_search",
     "load_problems",
+    "refresh",
     "register",
     "register_estimator",
     "register_search",
@@ -112,6 +113,14 @@ def _load() -> None:
                 f"entry point {entry.name!r} ({entry.value}) of group {ENTRY_POINT_GROUP!r} "
                 f"could not be loaded: {type(exc).__name__}: {exc}"
             )
+
+
+def refresh() -> None:
+    """Read the entry points again (after a distribution was installed in this process)."""
+    global _loaded
+    _loaded = False
+    _PROBLEMS.clear()
+    _load()
 
 
 def load_problems() -> dict[str, str]:
