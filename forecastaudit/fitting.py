@@ -17,12 +17,21 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from forecastaudit.adapters.protocol import FitRequest
-from forecastaudit.adapters.registry import adapter_class
-from forecastaudit.estimate import Estimate, Forecast
+from forecastaudit.adapters.registry import adapter_class, get_search
+from forecastaudit.estimate import Estimate, Forecast, SearchOutcome, SearchSettings
 from forecastaudit.run import Backend, Outcome, make_backend
 from forecastaudit.spec import ModelSpec
 
-__all__ = ["FitOutcome", "FitTask", "fit_unit", "run_fits"]
+__all__ = [
+    "FitOutcome",
+    "FitTask",
+    "SearchTask",
+    "fit_tasks",
+    "fit_unit",
+    "run_fits",
+    "run_searches",
+    "search_unit",
+]
 
 #: Default time limit of one unit, in seconds, where the backend can enforce one.
 DEFAULT_TIME_LIMIT = 600.0
@@ -166,3 +175,63 @@ def fit_tasks(
         )
         for key in keys
     ]
+
+
+@dataclass(frozen=True)
+class SearchTask:
+    """One automatic order search on one series."""
+
+    key: str
+    y: np.ndarray
+    period: int | None
+    settings: SearchSettings | None = None
+
+
+def search_unit(task: SearchTask) -> SearchOutcome:
+    """Run one order search (module level, so worker processes can import it)."""
+    outcome = get_search(task.key).run(task.y, task.period, task.settings)
+    outcome.native = None  # the library's object stays here
+    return outcome
+
+
+def run_searches(
+    tasks: Sequence[SearchTask],
+    backend: Backend | int | None = None,
+    *,
+    time_limit: float | None = None,
+    progress: str | bool | None = None,
+) -> list[SearchOutcome]:
+    """Run order searches on the execution seam; one outcome per task, in order."""
+    owned = not isinstance(backend, Backend)
+    runner = make_backend(backend)
+    try:
+        outcomes = runner.map(
+            search_unit,
+            list(tasks),
+            labels=[t.key for t in tasks],
+            time_limit=time_limit if runner.enforces_time_limit else None,
+            progress=progress,
+        )
+    finally:
+        if owned:
+            runner.close()
+    results = []
+    for task, outcome in zip(tasks, outcomes, strict=True):
+        if outcome.ok and isinstance(outcome.value, SearchOutcome):
+            results.append(outcome.value)
+            continue
+        adapter = get_search(task.key)
+        results.append(
+            SearchOutcome(
+                key=task.key,
+                engine=adapter.engine,
+                package=adapter.package,
+                version=adapter.version(),
+                status="failed",
+                reason=f"{outcome.status}: {outcome.error}",
+                settings=task.settings or SearchSettings(),
+                output=outcome.trace,
+                seconds=outcome.seconds,
+            )
+        )
+    return results

@@ -332,6 +332,7 @@ def _audit_stages(
             transform=spec.transform,
             estimators=keys,
             name=series.name,
+            n_jobs=backend,
         )
         findings += search_result.findings
     order = {"fail": 0, "warn": 1, "info": 2}

@@ -7,7 +7,7 @@ from typing import Any
 
 import pandas as pd
 
-from forecastaudit.diagnosis.findings import Finding
+from forecastaudit.diagnosis.findings import Finding, select_findings
 from forecastaudit.diagnosis.forecasts import (
     OriginalScaleForecast,
 )
@@ -110,13 +110,9 @@ class AuditResult:
                 return list(f.values.get("agreeing", []))
         return []
 
-    def findings_of(self, severity: str | None = None, kind: str | None = None) -> list[Finding]:
-        """Findings filtered by severity and/or kind."""
-        return [
-            f
-            for f in self.findings
-            if (severity is None or f.severity == severity) and (kind is None or f.kind == kind)
-        ]
+    def findings_of(self, *, severity: str | None = None, kind: str | None = None) -> list[Finding]:
+        """Findings filtered by severity and/or kind (keywords)."""
+        return select_findings(self.findings, severity=severity, kind=kind)
 
     # ------------------------------------------------------------------ output
     def to_dict(self, *, created: str | None = None, timings: bool = True) -> dict[str, Any]:
@@ -176,7 +172,7 @@ class AuditResult:
             lines += ["Parameters (canonical convention):", self.parameters.to_string(), ""]
             cols = ["status", "loglike_native", "loglike_reference", "gap_to_best", "aicc"]
             lines += ["Log-likelihoods:", self.likelihoods[cols].to_string(), ""]
-        counts = {s: len(self.findings_of(s)) for s in ("fail", "warn", "info")}
+        counts = {s: len(self.findings_of(severity=s)) for s in ("fail", "warn", "info")}
         lines.append(
             f"Findings: {counts['fail']} fail, {counts['warn']} warn, {counts['info']} info"
         )

@@ -77,7 +77,7 @@ def test_html_opens_with_the_verdict(report: fa.AuditResult, html: str) -> None:
     assert f"{len(report.series)} observations" in block
     labels = report.series.labels()
     assert f"{labels[0]} to {labels[-1]}" in block
-    counts = {s: len(report.findings_of(s)) for s in ("fail", "warn", "info")}
+    counts = {s: len(report.findings_of(severity=s)) for s in ("fail", "warn", "info")}
     for severity, count in counts.items():
         assert f"{count} {severity}" in block
     assert "independent engine" in block
@@ -98,7 +98,7 @@ def test_html_findings_are_grouped_most_severe_first(report: fa.AuditResult, htm
     positions = {
         s: html.find(f"<h3>{content.SEVERITY_LABELS[s]['heading']} (")
         for s in ("fail", "warn", "info")
-        if report.findings_of(s)
+        if report.findings_of(severity=s)
     }
     assert all(p > 0 for p in positions.values())
     assert list(positions.values()) == sorted(positions.values())
@@ -176,15 +176,15 @@ def test_compact_view(report: fa.AuditResult, html: str) -> None:
     assert _escaped(CAUTION) in compact
     assert "<img" not in compact and "<html" not in compact
     assert len(compact) < len(html) / 5
-    serious = report.findings_of("fail") + report.findings_of("warn")
+    serious = report.findings_of(severity="fail") + report.findings_of(severity="warn")
     for finding in serious[:5]:
         assert _escaped(finding.message) in compact
-    for finding in report.findings_of("info"):
+    for finding in report.findings_of(severity="info"):
         assert _escaped(finding.message) not in compact
 
 
 def test_compact_view_without_serious_findings(report: fa.AuditResult) -> None:
-    quiet = dataclasses.replace(report, findings=report.findings_of("info"))
+    quiet = dataclasses.replace(report, findings=report.findings_of(severity="info"))
     compact = render_compact_html(quiet)
     assert "PASS" in compact
     assert "No fail or warn findings" in compact
@@ -227,9 +227,9 @@ def test_markdown_verdict_findings_and_caution(report: fa.AuditResult, markdown:
     assert markdown.startswith("## forecastaudit: ")
     assert f"**Verdict:** {content.VERDICT_LABELS[report.verdict]['symbol']}" in markdown
     assert report.verdict.upper() in markdown.splitlines()[0]
-    for finding in report.findings_of("fail") + report.findings_of("warn"):
+    for finding in report.findings_of(severity="fail") + report.findings_of(severity="warn"):
         assert escape_markdown(finding.message) in markdown
-    infos = report.findings_of("info")
+    infos = report.findings_of(severity="info")
     if infos:
         assert "<details>" in markdown and f"{len(infos)} finding" in markdown
     assert escape_markdown(CAUTION) in markdown

@@ -25,6 +25,7 @@ from forecastaudit.errors import EstimatorError
 __all__ = [
     "ENTRY_POINT_GROUP",
     "adapter_class",
+    "adapter_packages",
     "available_estimators",
     "available_searches",
     "get_adapter",
@@ -151,6 +152,12 @@ def available_estimators() -> list[str]:
 def available_searches() -> list[str]:
     """Keys of every registered order-search adapter, built-in ones first."""
     return _keys("search")
+
+
+def adapter_packages() -> list[str]:
+    """The distributions every registered adapter (fit and search) calls, in order, once."""
+    _load()
+    return list(dict.fromkeys(str(getattr(cls, "package", "")) for cls in _REGISTRY.values()))
 
 
 def adapter_class(key: str, kind: Kind = "fit") -> type:

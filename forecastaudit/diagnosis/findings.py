@@ -8,6 +8,7 @@ a whole), the quantity it is about, a plain-language message and the numbers beh
 from __future__ import annotations
 
 import math
+from collections.abc import Iterable
 from dataclasses import dataclass, field
 from typing import Any, Literal
 
@@ -152,3 +153,15 @@ def _finite_or_none(value: Any) -> Any:
     if isinstance(value, list | tuple):
         return [_finite_or_none(v) for v in value]
     return value
+
+
+def select_findings(
+    findings: Iterable[Finding], *, severity: str | None = None, kind: str | None = None
+) -> list[Finding]:
+    """The findings of one severity and/or kind, in their order (the one filter used by
+    every result type)."""
+    return [
+        f
+        for f in findings
+        if (severity is None or f.severity == severity) and (kind is None or f.kind == kind)
+    ]

@@ -20,6 +20,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
+from forecastaudit.adapters.registry import adapter_packages
 from forecastaudit.errors import RecordError
 
 if TYPE_CHECKING:
@@ -33,15 +34,9 @@ RECORD_KIND = "forecastaudit-record"
 
 
 # Packages whose versions are recorded whether or not they took part.
-_PROVENANCE_PACKAGES = (
-    "numpy",
-    "scipy",
-    "pandas",
-    "statsmodels",
-    "pmdarima",
-    "sktime",
-    "statsforecast",
-)
+#: What forecastaudit's own computations (the reference, the diagnosis) run on; the
+#: estimator libraries come from the registry and from the estimates themselves.
+_CORE_PACKAGES = ("numpy", "scipy", "pandas")
 
 
 def _version(package: str) -> str | None:
@@ -49,6 +44,15 @@ def _version(package: str) -> str | None:
         return importlib.metadata.version(package)
     except importlib.metadata.PackageNotFoundError:
         return None
+
+
+def _packages() -> dict[str, str | None]:
+    """Installed versions of the core packages and of every registered adapter's library."""
+    names = list(_CORE_PACKAGES)
+    for package in adapter_packages():
+        if package not in names and package != "forecastaudit":
+            names.append(package)
+    return {name: _version(name) for name in names}
 
 
 def _blas() -> str | None:
@@ -71,7 +75,11 @@ def provenance(report: AuditResult) -> dict[str, Any]:
         "implementation": platform.python_implementation(),
         "platform": platform.platform(),
         "machine": platform.machine(),
-        "packages": {name: _version(name) for name in _PROVENANCE_PACKAGES},
+        "packages": _packages(),
+        "estimators": {
+            key: {"package": e.package, "version": e.version, "engine": e.engine}
+            for key, e in report.estimates.items()
+        },
         "blas": _blas(),
         "data": {
             "name": report.series.name,

@@ -269,7 +269,7 @@ class Summary:
 def summary(report: AuditResult) -> Summary:
     """The verdict block of a report."""
     labels = report.series.labels()
-    counts = {s: len(report.findings_of(s)) for s in ("fail", "warn", "info")}
+    counts = {s: len(report.findings_of(severity=s)) for s in ("fail", "warn", "info")}
     engine_values: Mapping[str, Any] = {}
     for f in report.findings:
         if f.kind == "engine-count":
@@ -359,7 +359,7 @@ def finding_groups(
     for severity in ("fail", "warn", "info"):
         if severity not in severities:
             continue
-        found = report.findings_of(severity)
+        found = report.findings_of(severity=severity)
         if not found or left <= 0:
             continue
         kept = found[: int(min(left, len(found)))]

@@ -241,7 +241,7 @@ def render_compact_html(report: AuditResult, top: int = 5) -> str:
         write the full report.
     """
     shared = _shared(report, with_plots=False)
-    serious = report.findings_of("fail") + report.findings_of("warn")
+    serious = report.findings_of(severity="fail") + report.findings_of(severity="warn")
     table = None if report.parameters.empty else content.parameter_table(report)
     return (
         _environment()
@@ -252,7 +252,7 @@ def render_compact_html(report: AuditResult, top: int = 5) -> str:
             groups=content.finding_groups(report, limit=top, severities=("fail", "warn")),
             shown=min(top, len(serious)),
             total=len(serious),
-            info=len(report.findings_of("info")),
+            info=len(report.findings_of(severity="info")),
             caution=_caution(),
         )
     )

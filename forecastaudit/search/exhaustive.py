@@ -6,13 +6,13 @@ import itertools
 import math
 import time
 from collections.abc import Iterable
-from concurrent.futures import ProcessPoolExecutor
 from typing import Any
 
 import numpy as np
 import pandas as pd
 
 from forecastaudit.conventions import information_criteria
+from forecastaudit.run import Backend, make_backend
 from forecastaudit.search.common import _key, _text
 from forecastaudit.spec import ModelSpec
 
@@ -47,27 +47,21 @@ def _fit_candidate(job: tuple[np.ndarray, ModelSpec]) -> dict[str, Any]:
     }
 
 
-def _blas_threads(limit: int) -> Any:
-    """Limit BLAS threads: the likelihoods are small problems, and on a busy machine a
-    multithreaded BLAS turns each call into thread contention (measured: 36 reference fits
-    of the airline model take about 2 s with one thread and several times that with the
-    default threads under load)."""
-    try:
-        from threadpoolctl import threadpool_limits
-    except ImportError:  # threadpoolctl comes with scikit-learn; without it, no limit
-        import contextlib
-
-        return contextlib.nullcontext()
-    return threadpool_limits(limits=limit)
-
-
-def _one_blas_thread() -> None:
-    """Process-pool initializer: one BLAS thread in each worker."""
-    global _WORKER_LIMIT
-    _WORKER_LIMIT = _blas_threads(1)
-
-
-_WORKER_LIMIT: Any = None
+def _failed_candidate(job: tuple[np.ndarray, ModelSpec], error: str) -> dict[str, Any]:
+    """The row of a candidate whose fit gave no result (it raised outside, or timed out)."""
+    y_t, spec = job
+    n_w = len(y_t) - spec.lost_to_differencing
+    k = spec.n_coefficients + 1
+    return {
+        "loglike": math.nan,
+        "k": k,
+        "n_w": n_w,
+        **information_criteria(math.nan, k, n_w),
+        "converged": False,
+        "params": {},
+        "note": error,
+        "seconds": 0.0,
+    }
 
 
 def _grid(
@@ -97,7 +91,7 @@ def exhaustive_reference_search(
     max_P: int = 1,
     max_Q: int = 1,
     extra: Iterable[ModelSpec] = (),
-    n_jobs: int | None = None,
+    n_jobs: int | Backend | None = None,
 ) -> tuple[pd.DataFrame, dict[str, Any]]:
     """Our own bounded exhaustive search under the reference AICc.
 
@@ -121,8 +115,9 @@ def exhaustive_reference_search(
     extra : iterable of ModelSpec
         Models fitted besides the grid (e.g. a search's choice outside the bounds), marked
         ``in_grid = False``.
-    n_jobs : int, optional
-        Worker processes (default 1: in this process, with one BLAS thread).
+    n_jobs : int or execution backend, optional
+        Where the candidate fits run: None or 1 in this process (one BLAS thread), N >= 2
+        in N local worker processes, or a backend from :mod:`forecastaudit.run`.
 
     Returns
     -------
@@ -152,19 +147,20 @@ def exhaustive_reference_search(
             in_grid.append(False)
     y = np.asarray(y_transformed, dtype=float)
     jobs = [(y, spec) for spec in specs]
-    workers = n_jobs if n_jobs is not None else 1
+    owned = not isinstance(n_jobs, Backend)
+    backend = make_backend(n_jobs)
+    workers = backend.workers
     started = time.perf_counter()
-    if workers > 1 and len(jobs) > 1:
-        # Most expensive first (more coefficients), so the pool ends together.
-        order = sorted(range(len(jobs)), key=lambda i: -specs[i].n_coefficients)
-        with ProcessPoolExecutor(max_workers=workers, initializer=_one_blas_thread) as pool:
-            done = list(pool.map(_fit_candidate, [jobs[i] for i in order], chunksize=1))
-        results: list[dict[str, Any]] = [{}] * len(jobs)
-        for i, result in zip(order, done, strict=True):
-            results[i] = result
-    else:
-        with _blas_threads(1):
-            results = [_fit_candidate(job) for job in jobs]
+    # Most expensive first (more coefficients), so the workers end together.
+    order = sorted(range(len(jobs)), key=lambda i: -specs[i].n_coefficients)
+    try:
+        done = backend.map(_fit_candidate, [jobs[i] for i in order])
+    finally:
+        if owned:
+            backend.close()
+    results: list[dict[str, Any]] = [{}] * len(jobs)
+    for i, outcome in zip(order, done, strict=True):
+        results[i] = outcome.value if outcome.ok else _failed_candidate(jobs[i], outcome.error)
     seconds = time.perf_counter() - started
     rows = []
     for spec, grid_member, result in zip(specs, in_grid, results, strict=True):

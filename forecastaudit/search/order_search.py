@@ -24,10 +24,13 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from forecastaudit.adapters.registry import available_searches, get_adapter, get_search
-from forecastaudit.diagnosis.findings import Finding
+from forecastaudit.adapters.registry import available_searches
+from forecastaudit.diagnosis.findings import Finding, select_findings
 from forecastaudit.errors import SpecError
 from forecastaudit.estimate import SearchOutcome
+from forecastaudit.fitting import SearchTask, fit_tasks, run_fits, run_searches
+from forecastaudit.layout import layout_of
+from forecastaudit.run import Backend, make_backend
 from forecastaudit.search.common import _json, _key, _records, _text
 from forecastaudit.search.decomposition import (
     RERUN_LIMIT,
@@ -107,13 +110,9 @@ class OrderSearchAudit:
         c = self.candidates
         return c[(c["d"] == d) & (c["D"] == D) & c["within_2"]]
 
-    def findings_of(self, kind: str | None = None, severity: str | None = None) -> list[Finding]:
-        """Findings filtered by kind and/or severity."""
-        return [
-            f
-            for f in self.findings
-            if (kind is None or f.kind == kind) and (severity is None or f.severity == severity)
-        ]
+    def findings_of(self, *, severity: str | None = None, kind: str | None = None) -> list[Finding]:
+        """Findings filtered by severity and/or kind (keywords, as on the audit result)."""
+        return select_findings(self.findings, severity=severity, kind=kind)
 
     def to_dict(self) -> dict[str, Any]:
         """JSON-ready form (numpy values to Python, NaN to None)."""
@@ -178,7 +177,10 @@ class OrderSearchAudit:
 
 
 def _default_constant_check(
-    y_t: np.ndarray, specs: Iterable[ModelSpec], estimators: Iterable[str] | None
+    y_t: np.ndarray,
+    specs: Iterable[ModelSpec],
+    estimators: Iterable[str] | None,
+    backend: Backend | int | None = None,
 ) -> tuple[pd.DataFrame, list[Finding]]:
     """What each fit adapter's library would add to each order when called with defaults."""
     from forecastaudit.adapters.registry import available_estimators
@@ -191,8 +193,9 @@ def _default_constant_check(
         implied = {0: "a non-zero level mean", 1: "a linear trend in levels (a drift)"}.get(
             s, f"a polynomial trend of degree {s} in levels"
         )
-        for key in keys:
-            estimate = get_adapter(key).fit(y_t, plain)
+        fitted = run_fits(fit_tasks(keys, y_t, plain, label="defaults check"), backend)
+        for key, outcome in zip(keys, fitted, strict=True):
+            estimate = outcome.estimate
             added = dict(estimate.overridden_defaults)
             rows.append(
                 {
@@ -253,22 +256,28 @@ def _advisories(spec: ModelSpec, params: Mapping[str, float], who: str) -> list[
             f"seasonal orders P={spec.P}, Q={spec.Q} above 1 are rarely needed",
             {"P": spec.P, "Q": spec.Q},
         )
-    for prefix, diff, kind in (("ma", spec.d, "regular"), ("sma", spec.D, "seasonal")):
-        total = sum(v for k, v in params.items() if k.startswith(f"{prefix}_lag"))
-        if diff >= 1 and any(k.startswith(f"{prefix}_lag") for k in params):
-            if abs(1.0 + total) < SUM_NEAR_ONE:
+    # Sums of each factor's coefficients, over those ``params`` holds (a failed fit holds
+    # none): the MA factors first, then the AR ones.
+    layout = layout_of(spec)
+    for factor in (*layout.ma_factors, *layout.ar_factors):
+        values = [params[name] for name in factor.names if name in params]
+        if not values:
+            continue
+        total = sum(values)
+        kind = "seasonal" if factor.seasonal else "regular"
+        if factor.kind == "ma":
+            differenced = spec.D if factor.seasonal else spec.d
+            if differenced >= 1 and abs(1.0 + total) < SUM_NEAR_ONE:
                 add(
                     f"the {kind} MA coefficients sum to {total:.3f}, near -1, after {kind} "
                     "differencing: a sign of over-differencing",
-                    {f"{prefix}_sum": total},
+                    {f"{factor.key}_sum": total},
                 )
-    for prefix, kind in (("ar", "regular"), ("sar", "seasonal")):
-        total = sum(v for k, v in params.items() if k.startswith(f"{prefix}_lag"))
-        if any(k.startswith(f"{prefix}_lag") for k in params) and abs(1.0 - total) < SUM_NEAR_ONE:
+        elif abs(1.0 - total) < SUM_NEAR_ONE:
             add(
                 f"the {kind} AR coefficients sum to {total:.3f}, near 1: a sign of a missing "
                 f"{kind} difference",
-                {f"{prefix}_sum": total},
+                {f"{factor.key}_sum": total},
             )
     return out
 
@@ -285,7 +294,7 @@ def audit_order_search(
     max_Q: int = 1,
     estimators: Iterable[str] | None = None,
     rerun_limit: float = RERUN_LIMIT,
-    n_jobs: int | None = None,
+    n_jobs: int | Backend | None = None,
     check_defaults: bool = True,
     name: str | None = None,
 ) -> OrderSearchAudit:
@@ -310,8 +319,10 @@ def audit_order_search(
     rerun_limit : float
         A search whose default run took longer than this (seconds) is not re-run for the
         decomposition; the cheaper search of each disagreeing pair is the one re-run.
-    n_jobs : int, optional
-        Worker processes for the exhaustive search (default 1, in this process).
+    n_jobs : int or execution backend, optional
+        Where the searches, the default-constant fits and the exhaustive search run: None
+        or 1 in this process, N >= 2 in N local worker processes, or a backend from
+        :mod:`forecastaudit.run`, reused as it is.
     check_defaults : bool
         Run the default-constant check through the fit adapters.
     name : str, optional
@@ -328,7 +339,10 @@ def audit_order_search(
     keys = list(searches) if searches is not None else available_searches()
     if not keys:
         raise SpecError("searches is empty; pass None for every installed search.")
-    outcomes = {key: get_search(key).run(y_t, m) for key in keys}
+    owned = not isinstance(n_jobs, Backend)
+    backend = make_backend(n_jobs)  # one set of workers for every stage of this audit
+    searched = run_searches([SearchTask(key, y_t, m) for key in keys], backend)
+    outcomes = dict(zip(keys, searched, strict=True))
     findings: list[Finding] = []
     for o in outcomes.values():
         if o.status != "ok":
@@ -369,7 +383,7 @@ def audit_order_search(
         max_P=max_P,
         max_Q=max_Q,
         extra=[o.spec for o in ok.values() if o.spec is not None],
-        n_jobs=n_jobs,
+        n_jobs=backend,
     )
     chosen: dict[str, list[str]] = {}
     for o in ok.values():
@@ -452,7 +466,9 @@ def audit_order_search(
     if check_defaults and ok:
         distinct = {_key(o.spec): o.spec for o in ok.values() if o.spec is not None}
         plain = {(s.order, s.seasonal, s.m): s for s in distinct.values()}
-        default_table, default_findings = _default_constant_check(y_t, plain.values(), estimators)
+        default_table, default_findings = _default_constant_check(
+            y_t, plain.values(), estimators, backend
+        )
         findings += default_findings
 
     timings = pd.DataFrame(
@@ -476,6 +492,8 @@ def audit_order_search(
     ).set_index("search")
     order = {"fail": 0, "warn": 1, "info": 2}
     findings.sort(key=lambda f: order[f.severity])
+    if owned:
+        backend.close()
     return OrderSearchAudit(
         series_name=series.name,
         n=len(series),
