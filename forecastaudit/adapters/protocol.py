@@ -21,6 +21,7 @@ from forecastaudit.adapters.capture import _Captured, _run_captured
 from forecastaudit.conventions import coefficient_names, information_criteria, parameter_names
 from forecastaudit.errors import EstimatorError
 from forecastaudit.estimate import Estimate, Forecast, Sigma2Kind
+from forecastaudit.jsonutil import to_plain
 from forecastaudit.spec import ModelSpec
 
 
@@ -393,6 +394,8 @@ class EstimatorAdapter(LibraryBound, ABC):
             )
         ordered = {name: params[name] for name in parameter_names(spec)}
         extra = {str(k_): float(v) for k_, v in result.extra_terms.items()}
+        # Canonical names beyond the spec are terms it did not ask for: never dropped.
+        extra.update({str(k_): float(v) for k_, v in result.params.items() if k_ not in params})
         fitted_model = result.fitted_model
         if extra and fitted_model is None:
             fitted_model = f"{spec} with extra terms: {', '.join(sorted(extra))}"
@@ -415,12 +418,16 @@ class EstimatorAdapter(LibraryBound, ABC):
             n_w=n_w,
             k=k,
             converged=result.converged,
-            optimizer=result.optimizer,
-            options={str(ns): dict(values) for ns, values in result.options.items()},
+            # Plain JSON values from here on, so the estimate round-trips exactly.
+            optimizer=to_plain(result.optimizer, nonfinite="tagged"),
+            options={
+                str(ns): to_plain(dict(values), nonfinite="tagged")
+                for ns, values in result.options.items()
+            },
             conversions=list(result.conversions),
             notes=list(result.notes),
             fitted_model=fitted_model,
-            overridden_defaults=dict(result.overridden_defaults),
+            overridden_defaults=to_plain(dict(result.overridden_defaults), nonfinite="tagged"),
             warnings=call.warnings,
             output=call.output,
             seconds=call.seconds,

@@ -57,6 +57,8 @@ _BUILT_IN: dict[str, tuple[str, ...]] = {
 
 _REGISTRY: dict[tuple[str, str], type] = {}
 _PROBLEMS: dict[str, str] = {}
+#: Registry keys each entry point added, so that a refresh can forget a removed one.
+_FROM_ENTRY_POINTS: dict[str, set[tuple[str, str]]] = {}
 _loaded = False
 
 
@@ -105,10 +107,12 @@ def _load() -> None:
         for name in _BUILT_IN[kind]:
             importlib.import_module(f"forecastaudit.adapters.{name}")
     for entry in importlib.metadata.entry_points(group=ENTRY_POINT_GROUP):
+        before = set(_REGISTRY)
         try:
             loaded = entry.load()
             if isinstance(loaded, type):
                 register(loaded)
+            _FROM_ENTRY_POINTS.setdefault(entry.name, set()).update(set(_REGISTRY) - before)
         except Exception as exc:  # a broken third-party adapter must not stop the others
             _PROBLEMS[entry.name] = (
                 f"entry point {entry.name!r} ({entry.value}) of group {ENTRY_POINT_GROUP!r} "
@@ -117,10 +121,15 @@ def _load() -> None:
 
 
 def refresh() -> None:
-    """Read the entry points again (after a distribution was installed in this process)."""
+    """Read the entry points again: adapters of distributions that appeared since are added,
+    those whose entry point is gone are forgotten (built-in adapters stay)."""
     global _loaded
     _loaded = False
     _PROBLEMS.clear()
+    for keys in _FROM_ENTRY_POINTS.values():
+        for key in keys:
+            _REGISTRY.pop(key, None)
+    _FROM_ENTRY_POINTS.clear()
     _load()
 
 
