@@ -79,8 +79,22 @@ def test_log_likelihood_definitions(airline_report: fa.AuditResult) -> None:
 def test_pmdarima_aicc_counts_len_y(airline_report: fa.AuditResult) -> None:
     # pmdarima's aicc() uses n = len(y) = 144 (estimator-facts.md: -483.2215 against
     # statsmodels' -483.2040 with n = 131); the audit explains it as a definition difference.
+    # Those are values at the optimum. pmdarima's own aicc is taken where its statsmodels
+    # L-BFGS stopped, which is not portable (0.011 log-likelihood units short of the optimum
+    # in about 1 of 100 runs with the data perturbed at 1e-13, measured; test_estimators.py):
+    # so its value is checked as pmdarima's formula at its own log-likelihood, and the
+    # published values at the reference optimum (portable; four decimals, hence 1e-4).
     e = airline_report.estimates["pmdarima"]
-    assert e.criteria_native["aicc"] == pytest.approx(-483.2215, abs=2e-3)
+    k, n, n_w = 3, 144, 131
+    assert e.criteria_native["aicc"] == pytest.approx(
+        -2 * e.loglike_native + 2 * k + 2 * k * (k + 1) / (n - k - 1), rel=1e-12
+    )
+    best = airline_report.estimates["reference"]
+    assert -2 * best.loglike_native + 2 * k + 2 * k * (k + 1) / (n - k - 1) == pytest.approx(
+        -483.2215, abs=1e-4
+    )
+    assert (best.n_w, best.k) == (n_w, k)
+    assert best.criteria["aicc"] == pytest.approx(-483.2040, abs=1e-4)
     explained = [
         f
         for f in airline_report.findings

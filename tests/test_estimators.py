@@ -19,10 +19,12 @@ from forecastaudit.adapters.registry import available_estimators, get_adapter
 from forecastaudit.adapters.statsforecast_arima import StatsforecastArima
 from forecastaudit.conventions import (
     box_jenkins_ma_to_canonical,
+    difference,
     information_criteria,
     parameter_names,
     trend_scale,
 )
+from forecastaudit.reference.fit import ReferenceFit, fit_reference
 
 STATESPACE = ("statsmodels-sarimax", "statsmodels-arima", "pmdarima", "sktime")
 AIRLINE = ModelSpec((0, 1, 1), (0, 1, 1), 12)
@@ -44,9 +46,44 @@ def _exact_loglike_of_differenced(w, ma_poly_params, order, seasonal_order, sigm
     return float(model.loglike(np.r_[ma_poly_params, sigma2]))
 
 
+def _statsmodels_own_loglike(y, params):
+    """statsmodels SARIMAX's own log-likelihood of the airline model at given parameters.
+
+    SARIMAX with its defaults (approximate diffuse prior, 13 observations burned) is the
+    objective all four statsmodels-engine adapters maximise on this model (no constant; same
+    signs: ``ma.L1`` = ma_lag1, ``ma.S.L12`` = sma_lag12). No optimiser runs, so the value is
+    deterministic to ~1e-10 at fixed parameters (estimator-facts.md).
+    """
+    from statsmodels.tsa.statespace.sarimax import SARIMAX
+
+    model = SARIMAX(y, order=(0, 1, 1), seasonal_order=(0, 1, 1, 12))
+    return float(model.loglike([params["ma_lag1"], params["sma_lag12"], params["sigma2"]]))
+
+
+# Where statsmodels' default L-BFGS stops (factr 1e7, pgtol 1e-5, maxiter 50, numerical
+# score) is not portable: it stops when one step improves -llf/n by less than
+# factr * eps = 2.2e-9 relative, at a point that depends on rounding. On the log airline model
+# it stopped at llf 244.6964851 here and at 244.69647978 on another CPU (estimator-facts.md);
+# with the data perturbed at 1e-13 relative (300 seeded runs, measured here) the median gap
+# to its own optimum is 5e-6, and about 1 run in 100 stops 0.011 short with ma_lag1 0.012 off.
+# So a statsmodels-engine estimate is held to published values only when it is within
+# STOPPING_SLACK of its own optimum; a gap of 1e-3 moves a coefficient by at most about
+# se * sqrt(2 * 1e-3) = 0.004 here (quadratic approximation, se 0.09). Beyond it the estimate
+# must be measurably short of that optimum, the case the audit reports as stopped short.
+STOPPING_SLACK = 1e-3
+
+
 @pytest.fixture(scope="module")
 def airline_fits(log_airline):
     return _fit_all(log_airline, AIRLINE)
+
+
+@pytest.fixture(scope="module")
+def airline_optimum(log_airline) -> ReferenceFit:
+    """The reference optimum: portable, its multi-start L-BFGS-B (ftol 1e-15, gtol 1e-10)
+    ends within 1e-13 in log-likelihood and 2e-8 in the coefficients from 41 starts
+    (measured)."""
+    return fit_reference(log_airline, AIRLINE)
 
 
 @pytest.fixture(scope="module")
@@ -82,7 +119,7 @@ def test_statsmodels_engine_adapters_agree(airline_fits):
         assert params["sigma2"] == pytest.approx(first["sigma2"], rel=1e-3), key
 
 
-def test_box_jenkins_series_g_values_are_recovered(airline_fits):
+def _assert_series_g(params, label):
     # Box, Jenkins & Reinsel, Time Series Analysis: Forecasting and Control, ch. 9, Series G,
     # log airline ARIMA(0,1,1)x(0,1,1)12: theta = 0.40, Theta = 0.61 in the book's minus-sign
     # MA convention (recalled from memory, per check-values.md). The book minimises the sum
@@ -90,37 +127,60 @@ def test_box_jenkins_series_g_values_are_recovered(airline_fits):
     # smaller Theta (about 0.56, check-values.md). So theta is asserted to 0.01 (the book's
     # rounding plus optimiser slack) and Theta only to 0.06: the gap is the objective, not an
     # error, and a tighter tolerance would assert the wrong thing.
-    ma_published = box_jenkins_ma_to_canonical(0.40)
-    sma_published = box_jenkins_ma_to_canonical(0.61)
-    assert (ma_published, sma_published) == (-0.40, -0.61)
+    assert params["ma_lag1"] == pytest.approx(box_jenkins_ma_to_canonical(0.40), abs=0.01), label
+    assert params["sma_lag12"] == pytest.approx(box_jenkins_ma_to_canonical(0.61), abs=0.06), label
+    # Exact ML: Theta about 0.56 (check-values.md, rounded to two decimals).
+    assert params["sma_lag12"] == pytest.approx(-0.56, abs=0.01), label
+    # Residual variance about 0.00134 (check-values.md, recalled from memory).
+    assert params["sigma2"] == pytest.approx(0.00134, rel=0.02), label
+
+
+def test_box_jenkins_series_g_values_are_recovered(airline_fits, airline_optimum, log_airline):
+    assert (box_jenkins_ma_to_canonical(0.40), box_jenkins_ma_to_canonical(0.61)) == (-0.40, -0.61)
+    _assert_series_g(airline_optimum.params, "reference optimum")
+    best = _statsmodels_own_loglike(log_airline, airline_optimum.params)
     for key in STATESPACE:
-        params = airline_fits[key].params
-        assert params["ma_lag1"] == pytest.approx(ma_published, abs=0.01), key
-        assert params["sma_lag12"] == pytest.approx(sma_published, abs=0.06), key
-        # Exact ML: Theta about 0.56 (check-values.md, rounded to two decimals).
-        assert params["sma_lag12"] == pytest.approx(-0.56, abs=0.01), key
-        # Residual variance about 0.00134 (check-values.md, recalled from memory).
-        assert params["sigma2"] == pytest.approx(0.00134, rel=0.02), key
+        estimate = airline_fits[key]
+        short = best - estimate.loglike_native
+        # No estimate lies above its own objective's optimum (1e-6: the optimum of
+        # statsmodels' objective and the exact one differ by its diffuse prior, ~1e-6).
+        assert short > -1e-6, key
+        if short <= STOPPING_SLACK:  # at its optimum, within the slack (see STOPPING_SLACK)
+            _assert_series_g(estimate.params, key)
+        else:  # stopped short: near the optimum, and lower by its own likelihood
+            for name in ("ma_lag1", "sma_lag12"):
+                assert estimate.params[name] == pytest.approx(
+                    airline_optimum.params[name], abs=0.05
+                ), key
 
 
-def test_statsforecast_airline_difference_is_an_optimiser_gap(airline_fits, log_airline):
-    # statsforecast (CSS-ML, its own engine) lands farther from the statsmodels optimum than
-    # the 0.01 tolerance above. Re-scored under one exact likelihood (statsmodels SARIMAX on
-    # the differenced series, stationary start), its point is lower: an optimiser that
-    # stopped short, not a different model. Measured with statsforecast 2.1.1.
-    from forecastaudit.conventions import difference
-
-    sf, sm = airline_fits["statsforecast"].params, airline_fits["statsmodels-sarimax"].params
+def test_statsforecast_airline_difference_is_an_optimiser_gap(
+    airline_fits, airline_optimum, log_airline
+):
+    # statsforecast (CSS-ML, its own engine) lands farther from the optimum than the 0.01
+    # tolerance above (measured with statsforecast 2.1.1: ma_lag1 -0.3772 against -0.4018,
+    # scipy status 2). Re-scored under one exact likelihood (statsmodels SARIMAX on the
+    # differenced series, stationary start), its point is lower: an optimiser that stopped
+    # short, not a different model. It was compared with statsmodels' own stopping point;
+    # both stopping points move between machines, so it is compared with the reference
+    # optimum (portable), and the stopped-short case is checked whenever it occurs.
+    sf, best = airline_fits["statsforecast"], airline_optimum.params
     w = difference(log_airline, AIRLINE)
     score = {
         name: _exact_loglike_of_differenced(
             w, [p["ma_lag1"], p["sma_lag12"]], (0, 0, 1), (0, 0, 1, 12), p["sigma2"]
         )
-        for name, p in (("statsforecast", sf), ("statsmodels", sm))
+        for name, p in (("statsforecast", sf.params), ("optimum", best))
     }
-    assert score["statsforecast"] < score["statsmodels"]
-    assert sf["ma_lag1"] == pytest.approx(sm["ma_lag1"], abs=0.05)
-    assert sf["sma_lag12"] == pytest.approx(sm["sma_lag12"], abs=0.05)
+    # A property of an optimum: no estimate scores higher (the reference fit ends within
+    # 1e-13 of it; the two exact likelihoods agree to ~1e-10).
+    assert score["statsforecast"] <= score["optimum"] + 1e-8
+    gap = max(abs(sf.params[name] - best[name]) for name in ("ma_lag1", "sma_lag12"))
+    if gap > 0.01:  # the measured case: farther than the tolerance, so lower and flagged
+        assert score["statsforecast"] < score["optimum"]
+        assert sf.converged is False and sf.optimizer["code"] != 0
+    assert sf.params["ma_lag1"] == pytest.approx(best["ma_lag1"], abs=0.05)
+    assert sf.params["sma_lag12"] == pytest.approx(best["sma_lag12"], abs=0.05)
 
 
 # ---------------------------------------------------------------------- Nile, local level
@@ -237,10 +297,14 @@ def test_drift_is_mu_and_consistent(random_walk_drift, order):
         assert mu == pytest.approx(truth["drift"], abs=3 / math.sqrt(truth["n"] - 1)), key
     if order == (0, 1, 0):
         # Closed form: for ARIMA(0,1,0) the ML drift is the mean of the differences,
-        # (y_n - y_1) / (n - 1). Tolerance 1e-4 for optimiser stopping.
+        # (y_n - y_1) / (n - 1). Tolerance for optimiser stopping, from statsmodels' default
+        # L-BFGS criterion: it may stop once a step improves -llf/n (1.43 here) by less than
+        # factr * eps = 2.2e-9 relative, 3.2e-9 absolute, which with the curvature 1/sigma2
+        # (about 1) in mu allows a drift error up to sqrt(2 * 3.2e-9) = 8e-5. 5e-4 is six times
+        # that and 0.01 of the drift's standard error (0.058); measured here: 5e-6.
         closed = (y[-1] - y[0]) / (len(y) - 1)
         for key, mu in mus.items():
-            assert mu == pytest.approx(closed, abs=1e-4), key
+            assert mu == pytest.approx(closed, abs=5e-4), key
     # Native names and their conversions with d = 1 (trend scale 1): statsforecast's drift
     # and statsmodels-arima's x1 are the slope per period, equal to mu.
     assert trend_scale(spec) == 1.0
@@ -298,7 +362,9 @@ def test_default_constants_without_differencing_are_overridden(ar1_mean10):
     # statsforecast's include_mean defaults to True, which applies when d + D = 0.
     sf = get_adapter("statsforecast").fit(ar1_mean10.values, ModelSpec((1, 0, 0)))
     assert sf.overridden_defaults == {"include_mean": True}
-    assert sf.options["statsforecast"]["include_mean"] is False and list(sf.native_params) == ["ar1"]
+    assert sf.options["statsforecast"]["include_mean"] is False and list(sf.native_params) == [
+        "ar1"
+    ]
 
 
 # ---------------------------------------------------------------------- sigma2 and criteria
@@ -311,8 +377,12 @@ def test_statsforecast_sigma2_is_converted_to_ml(airline_fits):
     assert estimate.params["sigma2"] == pytest.approx(
         estimate.sigma2_reported * (n_w - n_coef) / n_w, rel=1e-13
     )
-    # Reported value from estimator-facts.md: 0.00136941.
-    assert estimate.sigma2_reported == pytest.approx(0.00136941, rel=1e-5)
+    # Reported value from estimator-facts.md: 0.00136941. It is SSR / (n_w - 2) at the point
+    # where statsforecast's BFGS stopped (scipy status 2, precision loss), and that point is
+    # not portable. Between that point and the exact optimum the same definition moves by
+    # 3e-4 relative (0.00136900 at the optimum, measured), so 1e-3 holds wherever it stops
+    # in between and still tells it from the ML value 0.00134795 (1.6% lower).
+    assert estimate.sigma2_reported == pytest.approx(0.00136941, rel=1e-3)
     # Independent of the divisor: the library's own residuals give SSR / n_w.
     residuals = np.asarray(estimate.native.model_["residuals"], dtype=float)
     assert estimate.params["sigma2"] == pytest.approx(np.nansum(residuals**2) / n_w, rel=1e-10)
@@ -337,19 +407,68 @@ def test_criteria_native_and_canonical(airline_fits, log_airline):
     # ... and all but pmdarima in aicc: pmdarima's aicc() uses n = len(y) = 144
     # (estimator-facts.md: -483.2215 against -483.2040 on this model).
     pm = airline_fits["pmdarima"]
-    assert pm.criteria_native["aicc"] == pytest.approx(-483.2215, abs=1e-4)
-    assert pm.criteria["aicc"] == pytest.approx(-483.2040, abs=1e-4)
     n = len(log_airline)
     assert pm.criteria_native["aicc"] == pytest.approx(
         pm.criteria_native["aic"] + 2 * k * (k + 1) / (n - k - 1), rel=1e-12
+    )
+    # Closed form, whatever the log-likelihood: the two n differ by
+    # 2k(k+1) (1/(144-k-1) - 1/(131-k-1)) = -0.0175478.
+    assert pm.criteria_native["aicc"] - pm.criteria["aicc"] == pytest.approx(
+        2 * k * (k + 1) * (1 / (n - k - 1) - 1 / (n_w - k - 1)), rel=1e-9
+    )
+    assert 2 * k * (k + 1) * (1 / (n - k - 1) - 1 / (n_w - k - 1)) == pytest.approx(
+        -0.0175478, abs=1e-7
     )
     for key in ("statsmodels-sarimax", "statsmodels-arima", "sktime", "statsforecast"):
         estimate = airline_fits[key]
         assert estimate.criteria_native["aicc"] == pytest.approx(
             estimate.criteria["aicc"], rel=1e-10
         ), key
+
+
+def test_statsmodels_loglike_at_fixed_parameters_and_at_its_stop(
+    airline_fits, airline_optimum, log_airline
+):
+    # The default fit's log-likelihood was asserted to 1e-6 (244.6964851, estimator-facts.md)
+    # until another CPU stopped at 244.69647978: where L-BFGS stops is not portable (see
+    # STOPPING_SLACK). Portable instead: statsmodels' own likelihood at fixed parameters, its
+    # value at the reference optimum, and where the fit stopped relative to that optimum.
+    fixed = {"ma_lag1": -0.4018, "sma_lag12": -0.5569, "sigma2": 0.001348}
+    at_fixed = _statsmodels_own_loglike(log_airline, fixed)
+    # Measured with statsmodels 0.15 (a regression value; no optimiser involved).
+    assert at_fixed == pytest.approx(244.6964861342, abs=1e-8)
+    # Independent: the exact Gaussian likelihood of the differenced series at the same
+    # parameters (statsmodels SARIMAX on w, stationary start, equal to the dense
+    # multivariate-normal density; check-values.md) differs only by the approximate diffuse
+    # prior, about 1e-6 (estimator-facts.md: 244.6964851 against 244.6964844).
+    w = difference(log_airline, AIRLINE)
+    exact = _exact_loglike_of_differenced(
+        w, [fixed["ma_lag1"], fixed["sma_lag12"]], (0, 0, 1), (0, 0, 1, 12), fixed["sigma2"]
+    )
+    assert exact == pytest.approx(244.6964864541, abs=1e-8)  # measured, statsmodels 0.15
+    assert at_fixed == pytest.approx(exact, abs=1e-5)
+    # At the reference optimum (portable to 2e-8 in the coefficients, where the likelihood is
+    # flat to first order): statsmodels' own optimum value, and pmdarima's and the canonical
+    # AICc there are the values of estimator-facts.md (-483.2215 and -483.2040, four
+    # decimals).
+    best = _statsmodels_own_loglike(log_airline, airline_optimum.params)
+    assert best == pytest.approx(244.6964873, abs=1e-6)  # measured, statsmodels 0.15
+    k, n, n_w = 3, len(log_airline), len(log_airline) - 13
+    assert -2 * best + 2 * k + 2 * k * (k + 1) / (n - k - 1) == pytest.approx(-483.2215, abs=1e-4)
+    assert information_criteria(best, k, n_w)["aicc"] == pytest.approx(-483.2040, abs=1e-4)
+    for key in STATESPACE:
+        estimate = airline_fits[key]
+        # What the adapter reports is the library's likelihood at the estimate it reports.
+        assert estimate.loglike_native == pytest.approx(
+            _statsmodels_own_loglike(log_airline, estimate.params), rel=1e-12
+        ), key
+        # A property of an optimum: no estimate is above it (1e-6: diffuse prior, above).
+        assert estimate.loglike_native <= best + 1e-6, key
+        # Where it stopped: 2e-6 below the optimum here, 8e-6 on the other CPU, at most 0.011
+        # in 300 perturbed runs (STOPPING_SLACK); 0.05 is five times the audit's default
+        # loglike tolerance, so a fit beyond it is far outside anything measured.
+        assert estimate.loglike_native > best - 0.05, key
     sarimax = airline_fits["statsmodels-sarimax"]
-    assert sarimax.loglike_native == pytest.approx(244.6964851, abs=1e-6)  # estimator-facts.md
     assert (sarimax.n_used_native, sarimax.k_counted_native) == (131, 3)
 
 
