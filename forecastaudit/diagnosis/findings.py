@@ -7,10 +7,11 @@ a whole), the quantity it is about, a plain-language message and the numbers beh
 
 from __future__ import annotations
 
-import math
 from collections.abc import Iterable
 from dataclasses import dataclass, field
 from typing import Any, Literal
+
+from forecastaudit.jsonutil import to_plain as _finite_or_none
 
 __all__ = ["KINDS", "SEVERITIES", "Finding"]
 
@@ -143,16 +144,6 @@ class Finding:
     def __str__(self) -> str:
         who = f" [{self.estimator}]" if self.estimator else ""
         return f"{self.severity.upper():4} {self.kind}{who}: {self.message}"
-
-
-def _finite_or_none(value: Any) -> Any:
-    if isinstance(value, float) and not math.isfinite(value):
-        return None
-    if isinstance(value, dict):
-        return {str(k): _finite_or_none(v) for k, v in value.items()}
-    if isinstance(value, list | tuple):
-        return [_finite_or_none(v) for v in value]
-    return value
 
 
 def select_findings(

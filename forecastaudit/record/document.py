@@ -11,7 +11,6 @@ from __future__ import annotations
 import hashlib
 import importlib.metadata
 import json
-import math
 import os
 import platform
 import sys
@@ -22,6 +21,7 @@ import numpy as np
 
 from forecastaudit.adapters.registry import adapter_packages
 from forecastaudit.errors import RecordError
+from forecastaudit.jsonutil import to_plain as _clean
 
 if TYPE_CHECKING:
     from forecastaudit.result import AuditResult
@@ -226,28 +226,6 @@ def _frame_records(frame: Any) -> list[dict[str, Any]] | None:
     if frame is None:
         return None
     return frame.reset_index().to_dict(orient="records")
-
-
-def _clean(value: Any) -> Any:
-    """JSON-ready values: numpy scalars to Python, non-finite floats to None."""
-    if isinstance(value, dict):
-        return {str(k): _clean(v) for k, v in value.items()}
-    if isinstance(value, list | tuple):
-        return [_clean(v) for v in value]
-    if isinstance(value, np.ndarray):
-        return _clean(value.tolist())
-    if isinstance(value, np.bool_ | bool):
-        return bool(value)
-    if isinstance(value, np.integer):
-        return int(value)
-    if isinstance(value, np.floating | float):
-        value = float(value)
-        return value if math.isfinite(value) else None
-    if value is None or isinstance(value, int | str):
-        return value
-    if value is getattr(np, "nan", None):
-        return None
-    return repr(value)
 
 
 def dumps(record: dict[str, Any]) -> str:

@@ -17,6 +17,7 @@ import pandas as pd
 
 from forecastaudit.diagnosis.findings import KINDS, Finding
 from forecastaudit.estimate import REFERENCE_KEY
+from forecastaudit.jsonutil import is_finite_number as _finite
 
 if TYPE_CHECKING:
     from forecastaudit.result import AuditResult
@@ -206,13 +207,6 @@ def _text(value: Any, flag: str | None = None) -> Cell:
     if value is None or (isinstance(value, float) and not math.isfinite(value)):
         return Cell(MISSING)
     return Cell(_plain_text(value), flag=flag)
-
-
-def _finite(value: Any) -> bool:
-    try:
-        return value is not None and math.isfinite(float(value))
-    except (TypeError, ValueError):
-        return False
 
 
 # ---------------------------------------------------------------------- summary

@@ -24,6 +24,7 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
 from forecastaudit.estimate import REFERENCE_KEY
+from forecastaudit.jsonutil import is_finite_number as _finite
 
 if TYPE_CHECKING:
     from forecastaudit.result import AuditResult
@@ -176,13 +177,6 @@ def _style_of(position: int) -> dict[str, Any]:
         "marker": MARKERS[position % len(MARKERS)],
         "linestyle": LINESTYLES[position % len(LINESTYLES)],
     }
-
-
-def _finite(value: Any) -> bool:
-    try:
-        return value is not None and math.isfinite(float(value))
-    except (TypeError, ValueError):
-        return False
 
 
 # ---------------------------------------------------------------------- parameters

@@ -2,12 +2,11 @@
 
 from __future__ import annotations
 
-import math
 from typing import Any
 
 import pandas as pd
 
-from forecastaudit.jsonutil import to_plain as _plain
+from forecastaudit.jsonutil import to_plain as _json
 from forecastaudit.spec import ModelSpec
 
 
@@ -32,14 +31,3 @@ def _records(frame: pd.DataFrame | None) -> list[dict[str, Any]]:
     for row in frame.reset_index(drop=frame.index.name is None).to_dict(orient="records"):
         out.append({str(k): _json(v) for k, v in row.items()})
     return out
-
-
-def _json(value: Any) -> Any:
-    value = _plain(value)
-    if isinstance(value, float) and not math.isfinite(value):
-        return None
-    if isinstance(value, list):
-        return [_json(v) for v in value]
-    if isinstance(value, dict):
-        return {k: _json(v) for k, v in value.items()}
-    return value
