@@ -57,8 +57,39 @@ REASONS: dict[str, str] = {
         "source)."
     ),
     "min_independent_engines": (
-        "The audit passes only when at least this many independent engines (wrappers of one "
-        "engine count once) produced an estimate that agrees with the reference optimum."
+        "The production estimate must be corroborated by at least this many independent "
+        "engines, itself included (wrappers of one engine count once). forecastaudit's "
+        "reference counts as one: it is independent code, checked against closed forms and "
+        "published values. The default 2 is the production engine and one other."
+    ),
+    "material_forecast_se": (
+        "A point-forecast difference is material beyond this many forecast standard errors "
+        "at any step: half a standard error visibly moves a forecast inside its own interval "
+        "(common practice, no source)."
+    ),
+    "material_forecast_percent": (
+        "A point-forecast difference is material beyond this percentage of the point, on the "
+        "original scale: 1% of a plan is what planning decisions are usually rounded to "
+        "(common practice, no source)."
+    ),
+    "material_width_rtol": (
+        "An interval-width difference is material beyond this relative amount: 5% changes "
+        "safety stocks and staffing buffers sized from the intervals (common practice, no "
+        "source)."
+    ),
+    "material_accuracy_rtol": (
+        "A holdout accuracy (MASE) difference is material beyond this relative amount "
+        "(common practice, no source)."
+    ),
+    "fail_on_other_engines": (
+        "When true, a material disagreement of an engine other than the production one "
+        "fails the audit; by default it is a note telling the team what a switch would do."
+    ),
+    "fail_on_model_findings": (
+        "When true, findings about the model itself (an optimum on the invertibility "
+        "boundary, residual autocorrelation, intervals crossing zero on a positive series, "
+        "the specified model outside the support band of the order search) fail the audit; "
+        "by default they are notes for the modeller."
     ),
 }
 
@@ -88,7 +119,22 @@ class Tolerances:
     root_margin : float
         Roots with modulus below ``1 + root_margin`` are on the boundary. Default 0.02.
     min_independent_engines : int
-        Independent engines that must agree with the reference optimum. Default 2.
+        Independent engines, the production engine and the reference included, that must
+        agree with the production estimate. Default 2.
+    material_forecast_se : float
+        Materiality threshold of a point-forecast difference, in forecast standard errors.
+        Default 0.5.
+    material_forecast_percent : float
+        Materiality threshold of a point-forecast difference, in percent of the point.
+        Default 1.0.
+    material_width_rtol : float
+        Materiality threshold of an interval-width difference (relative). Default 0.05.
+    material_accuracy_rtol : float
+        Materiality threshold of a holdout MASE difference (relative). Default 0.05.
+    fail_on_other_engines : bool
+        Whether another engine's material disagreement fails the audit. Default False.
+    fail_on_model_findings : bool
+        Whether findings about the model itself fail the audit. Default False.
 
     Notes
     -----
@@ -105,10 +151,20 @@ class Tolerances:
     accuracy_rtol: float = 0.01
     root_margin: float = 0.02
     min_independent_engines: int = 2
+    material_forecast_se: float = 0.5
+    material_forecast_percent: float = 1.0
+    material_width_rtol: float = 0.05
+    material_accuracy_rtol: float = 0.05
+    fail_on_other_engines: bool = False
+    fail_on_model_findings: bool = False
 
     def __post_init__(self) -> None:
         for item in dataclasses.fields(self):
             value = getattr(self, item.name)
+            if item.name.startswith("fail_on_"):
+                if not isinstance(value, bool):
+                    raise ToleranceError(f"{item.name} must be True or False, got {value!r}.")
+                continue
             if item.name == "min_independent_engines":
                 if isinstance(value, bool) or not isinstance(value, int) or value < 1:
                     raise ToleranceError(
