@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import base64
 import dataclasses
+import html as html_text
 import re
 import shutil
 import subprocess
@@ -21,8 +22,9 @@ import pytest
 import forecastaudit as fa
 from forecastaudit.diagnosis.findings import Finding
 from forecastaudit.report import content, plots, render_compact_html, render_html
-from forecastaudit.report.html import SECTIONS
-from forecastaudit.report.markdown import escape_markdown, render_markdown
+from forecastaudit.report.html import SECTIONS, TEMPLATES
+from forecastaudit.report.markdown import WRITERS, escape_markdown, render_markdown
+from forecastaudit.report.sections import KINDS
 from forecastaudit.result import CAUTION
 
 HOSTILE = '<script>alert(1)</script>&"'
@@ -150,7 +152,14 @@ def test_sections_appear_only_with_data(report: fa.AuditResult, html: str) -> No
 def test_every_section_template_exists() -> None:
     folder = Path(fa.__file__).parent / "report" / "templates"
     for section in SECTIONS:
-        assert (folder / section.template).is_file(), section.template
+        assert (folder / TEMPLATES[section.kind]).is_file(), TEMPLATES[section.kind]
+
+
+def test_every_kind_of_section_is_drawn_in_every_format() -> None:
+    assert {s.kind for s in SECTIONS} <= set(KINDS)
+    assert set(TEMPLATES) == set(KINDS)
+    assert set(WRITERS) == set(KINDS)
+    assert len({s.id for s in SECTIONS}) == len(SECTIONS)
 
 
 def test_hostile_strings_are_escaped_everywhere(hostile: fa.AuditResult) -> None:
@@ -250,6 +259,44 @@ def test_escape_markdown() -> None:
     assert escape_markdown("two\nlines") == "two lines"
     assert escape_markdown("2*pi [link]") == "2\\*pi \\[link\\]"
     assert escape_markdown("ma_lag1") == "ma_lag1"  # intraword underscores stay readable
+
+
+# ---------------------------------------------------------------------- both formats
+def _html_titles(page: str) -> list[str]:
+    return [html_text.unescape(t) for t in re.findall(r'<h2 id="[^"]+-title">(.*?)</h2>', page)]
+
+
+def _markdown_titles(text: str) -> list[str]:
+    return [line[len("### ") :] for line in text.splitlines() if line.startswith("### ")]
+
+
+@pytest.mark.parametrize("variant", ["full", "bare"])
+def test_html_and_markdown_have_the_same_sections(
+    report: fa.AuditResult, html: str, markdown: str, variant: str
+) -> None:
+    if variant == "bare":  # sections without data are left out of both formats alike
+        report = dataclasses.replace(report, spread=None, residual_tests=None, forecasts={})
+        html, markdown = render_html(report), render_markdown(report)
+    titles = _html_titles(html)
+    assert titles == _markdown_titles(markdown)
+    assert titles == [s.title for s in SECTIONS if s.title in titles]
+    assert titles[0] == "Verdict" and titles[-1] == "Caution"
+    assert {"Findings", "Parameters", "Plots", "Tolerances", "Provenance"} <= set(titles)
+    if variant == "bare":
+        assert "Forecasts" not in titles and "Residual checks" not in titles
+    # The same intro, directly under the heading, in both formats.
+    for section in SECTIONS:
+        if section.intro and section.title in titles:
+            heading = f'<h2 id="{section.id}-title">{_escaped(section.title)}</h2>'
+            assert f"{heading}\n<p>{_escaped(section.intro)}</p>" in html
+            intro = escape_markdown(section.intro)
+            assert f"### {section.title}\n\n{intro}\n" in markdown
+
+
+def test_markdown_describes_every_figure(report: fa.AuditResult, markdown: str) -> None:
+    for plot in plots.report_plots(report):
+        assert f"- **{escape_markdown(plot.title)}.** {escape_markdown(plot.alt)}" in markdown
+    assert "![" not in markdown and "data:image" not in markdown
 
 
 # ---------------------------------------------------------------------- content

@@ -5,18 +5,27 @@ findings recorded for information. Tables are formatted here (no dependency on
 ``tabulate``). User-supplied text is escaped so that it cannot break a table or inject
 markup: ``|`` and Markdown punctuation are backslash-escaped and ``<``, ``>``, ``&`` become
 HTML entities.
+
+The sections, their order, titles and intros are those of the HTML report (the shared list
+in :mod:`forecastaudit.report.sections`): each section is a level-3 heading, and this
+module only says how each kind of section is written in Markdown (:data:`WRITERS`).
+Figures are not embedded: the plots section lists each figure's title and its alternative
+text (what the figure shows, in words) and points to the HTML report for the images.
 """
 
 from __future__ import annotations
 
-from typing import TYPE_CHECKING
+from collections.abc import Callable
+from typing import TYPE_CHECKING, Any
 
 from forecastaudit.report import content
+from forecastaudit.report.sections import ReportData, built_sections
 
 if TYPE_CHECKING:
+    from forecastaudit.report.plots import Plot
     from forecastaudit.result import AuditResult
 
-__all__ = ["escape_markdown", "markdown_table", "render_markdown"]
+__all__ = ["WRITERS", "escape_markdown", "markdown_table", "render_markdown"]
 
 _ESCAPED = "\\`*[]|"
 
@@ -70,10 +79,26 @@ def _finding_line(item: content.FindingItem) -> str:
     )
 
 
-def _findings(report: AuditResult) -> list[str]:
-    groups = content.finding_groups(report)
-    if not groups:
-        return ["No findings."]
+# ---------------------------------------------------------------------- one writer per kind
+def _verdict(s: content.Summary) -> list[str]:
+    from forecastaudit.result import CAUTION
+
+    return [
+        f"- **Verdict:** {s.verdict_symbol} {s.verdict_word}",
+        f"- **Model:** `{s.spec}`",
+        f"- **Series:** {escape_markdown(s.series_name)}, {s.n} observations, "
+        f"{escape_markdown(s.date_range)}" + (f", period {s.period}" if s.period else ""),
+        f"- **Findings:** {s.counts_sentence}",
+        f"- **Independent engines:** {escape_markdown(s.engines_sentence)}"
+        + (f": {escape_markdown(', '.join(s.engines_agreeing))}" if s.engines_agreeing else ""),
+        f"- **Estimators:** {s.estimators_ok} of {s.estimators_run} produced an estimate",
+        f"- **Audit finished:** {escape_markdown(s.created or 'not recorded')} (UTC)",
+        "",
+        f"> **Caution.** {escape_markdown(CAUTION)}",
+    ]
+
+
+def _findings(groups: list[content.FindingGroup]) -> list[str]:
     lines: list[str] = []
     for group in groups:
         count = len(group.items)
@@ -87,12 +112,39 @@ def _findings(report: AuditResult) -> list[str]:
             lines += [_finding_line(item) for item in group.items]
             lines += ["", "</details>", ""]
             continue
-        lines += [f"### {group.heading} ({count})", ""]
+        lines += [f"#### {group.heading} ({count})", ""]
         for item in group.items:
             lines.append(_finding_line(item))
             lines.append(f"  - *{escape_markdown(item.explanation)}*")
         lines.append("")
     return lines
+
+
+def _tables(tables: list[content.Table]) -> list[str]:
+    lines: list[str] = []
+    for table in tables:
+        lines += [markdown_table(table), ""]
+    return lines
+
+
+def _plots(plots: list[Plot]) -> list[str]:
+    lines = ["The figures are embedded in the HTML report only; here is what each one shows.", ""]
+    lines += [f"- **{escape_markdown(p.title)}.** {escape_markdown(p.alt)}" for p in plots]
+    return lines
+
+
+def _caution(text: str) -> list[str]:
+    return [escape_markdown(text)]
+
+
+# How each kind of section is written (heading and intro are written by render_markdown).
+WRITERS: dict[str, Callable[[Any], list[str]]] = {
+    "verdict": _verdict,
+    "findings": _findings,
+    "tables": _tables,
+    "plots": _plots,
+    "caution": _caution,
+}
 
 
 def render_markdown(report: AuditResult) -> str:
@@ -106,71 +158,26 @@ def render_markdown(report: AuditResult) -> str:
     Returns
     -------
     str
-        Verdict, findings (fail and warn in full, info in a collapsed list), the parameter
-        and likelihood tables, the estimators, forecasts, residual and holdout tables when
-        the audit has them, the tolerances, a provenance summary and the caution.
+        A title line, then the sections of the HTML report in the same order, each a
+        level-3 heading with its intro: verdict, findings (fail and warn in full, info in a
+        collapsed list), the tables the audit has data for, the figures (title and
+        description; the images are in the HTML report), tolerances, provenance and the
+        caution.
     """
-    from forecastaudit.record.document import provenance
-    from forecastaudit.result import CAUTION
-
-    s = content.summary(report)
-    facts = provenance(report)
+    data = ReportData(report)
+    s = data.summary
     lines = [
         f"## forecastaudit: {s.verdict_symbol} {s.verdict_word}: "
         f"{escape_markdown(s.spec)} on {escape_markdown(s.series_name)}",
         "",
-        f"- **Verdict:** {s.verdict_symbol} {s.verdict_word}",
-        f"- **Model:** `{s.spec}`",
-        f"- **Series:** {escape_markdown(s.series_name)}, {s.n} observations, "
-        f"{escape_markdown(s.date_range)}" + (f", period {s.period}" if s.period else ""),
-        f"- **Findings:** {s.counts_sentence}",
-        f"- **Independent engines:** {escape_markdown(s.engines_sentence)}"
-        + (f": {escape_markdown(', '.join(s.engines_agreeing))}" if s.engines_agreeing else ""),
-        f"- **Estimators:** {s.estimators_ok} of {s.estimators_run} produced an estimate",
-        f"- **Audit finished:** {escape_markdown(s.created or 'not recorded')} (UTC)",
-        "",
-        f"> **Caution.** {escape_markdown(CAUTION)}",
-        "",
-        "### Findings" if report.findings else "",
-        "",
     ]
-    lines += _findings(report)
-    tables: list[content.Table | None] = [
-        None if report.parameters.empty else content.parameter_table(report),
-        None if report.likelihoods.empty else content.likelihood_table(report),
-        content.estimator_table(report),
-        content.forecast_table(report),
-        content.residual_table(report),
-        *content.holdout_tables(report),
-        *content.order_search_tables(report),
-        content.tolerance_table(report),
-    ]
-    for table in tables:
-        if table is not None:
-            lines += ["", markdown_table(table), ""]
-    data = facts.get("data", {})
-    packages = ", ".join(
-        f"{escape_markdown(name)} {escape_markdown(version or 'not installed')}"
-        for name, version in facts.get("packages", {}).items()
-    )
-    lines += [
-        "",
-        "### Provenance",
-        "",
-        f"- forecastaudit {escape_markdown(facts.get('forecastaudit'))}, Python "
-        f"{escape_markdown(facts.get('python'))} on {escape_markdown(facts.get('platform'))}",
-        f"- Packages: {packages}",
-        f"- Data: {escape_markdown(data.get('name'))}, n = {data.get('n')}, "
-        f"{escape_markdown(data.get('first'))} to {escape_markdown(data.get('last'))}, "
-        f"SHA-256 `{data.get('fingerprint_sha256')}`",
-        "- The audit record (JSON) holds every resolved option, warning and native value.",
-        "",
-        "### Caution",
-        "",
-        escape_markdown(CAUTION),
-        "",
-    ]
+    for built in built_sections(data):
+        lines += [f"### {escape_markdown(built.title)}", ""]
+        if built.intro:
+            lines += [escape_markdown(built.intro), ""]
+        lines += WRITERS[built.kind](built.data)
+        lines.append("")
     text = "\n".join(lines)
     while "\n\n\n" in text:
         text = text.replace("\n\n\n", "\n\n")
-    return text
+    return text.rstrip("\n") + "\n"
