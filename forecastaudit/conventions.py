@@ -10,6 +10,9 @@ The model, for the observed series y after the optional transform::
 AR terms carry a minus sign and MA terms a plus sign; seasonal factors multiply. ``mu`` is
 the mean of the differenced series w. Everything downstream of the estimator adapters sees
 parameters only in this convention, as an ordered mapping from canonical name to value.
+
+The names, factor blocks, polynomials and roots belong to :mod:`forecastaudit.layout`; the
+functions of that kind here are thin, stable shorthands for it.
 """
 
 from __future__ import annotations
@@ -19,6 +22,7 @@ from collections.abc import Mapping, Sequence
 
 import numpy as np
 
+from forecastaudit.layout import lag_polynomial_root_moduli, layout_of
 from forecastaudit.spec import ModelSpec
 
 __all__ = [
@@ -43,52 +47,30 @@ def coefficient_names(spec: ModelSpec) -> list[str]:
     """Canonical names of the free coefficients of ``spec`` (sigma2 excluded), in order.
 
     Regular AR, seasonal AR, regular MA, seasonal MA, then ``mu``. Seasonal lags are written
-    as lag numbers: the second seasonal AR term at m=12 is ``sar_lag24``.
+    as lag numbers: the second seasonal AR term at m=12 is ``sar_lag24``. The parameter
+    layout (:func:`forecastaudit.layout.layout_of`) owns the names; this is a list copy.
     """
-    m = spec.m
-    names = [f"ar_lag{i}" for i in range(1, spec.p + 1)]
-    names += [f"sar_lag{i * m}" for i in range(1, spec.P + 1)]
-    names += [f"ma_lag{j}" for j in range(1, spec.q + 1)]
-    names += [f"sma_lag{j * m}" for j in range(1, spec.Q + 1)]
-    if spec.mean:
-        names.append("mu")
-    names += [f"x_{column}" for column in spec.exog]
-    return names
+    return list(layout_of(spec).coefficient_names)
 
 
 def parameter_names(spec: ModelSpec) -> list[str]:
     """Canonical names of every parameter of ``spec``: the coefficients, then ``sigma2``."""
-    return [*coefficient_names(spec), "sigma2"]
-
-
-def _factor(params: Mapping[str, float], prefix: str, count: int, step: int) -> list[float]:
-    return [float(params[f"{prefix}_lag{i * step}"]) for i in range(1, count + 1)]
-
-
-def _lag_polynomial(coefs: Sequence[float], step: int, sign: float) -> np.ndarray:
-    poly = np.zeros(len(coefs) * step + 1)
-    poly[0] = 1.0
-    for i, c in enumerate(coefs, start=1):
-        poly[i * step] = sign * c
-    return poly
+    return list(layout_of(spec).parameter_names)
 
 
 def ar_polynomial(spec: ModelSpec, params: Mapping[str, float]) -> np.ndarray:
     """Full AR lag polynomial ``phi(B) Phi(B^m)`` as coefficients of B^0, B^1, ...
 
     The first entry is 1 and the others carry the minus sign of the convention:
-    ``ar_polynomial`` of an AR(1) with ``ar_lag1 = 0.6`` is ``[1, -0.6]``.
+    ``ar_polynomial`` of an AR(1) with ``ar_lag1 = 0.6`` is ``[1, -0.6]``. See
+    :meth:`forecastaudit.layout.ParameterLayout.ar_polynomial`.
     """
-    regular = _lag_polynomial(_factor(params, "ar", spec.p, 1), 1, -1.0)
-    seasonal = _lag_polynomial(_factor(params, "sar", spec.P, spec.m), spec.m, -1.0)
-    return np.convolve(regular, seasonal)
+    return layout_of(spec).ar_polynomial(params)
 
 
 def ma_polynomial(spec: ModelSpec, params: Mapping[str, float]) -> np.ndarray:
     """Full MA lag polynomial ``theta(B) Theta(B^m)`` as coefficients of B^0, B^1, ..."""
-    regular = _lag_polynomial(_factor(params, "ma", spec.q, 1), 1, 1.0)
-    seasonal = _lag_polynomial(_factor(params, "sma", spec.Q, spec.m), spec.m, 1.0)
-    return np.convolve(regular, seasonal)
+    return layout_of(spec).ma_polynomial(params)
 
 
 def difference(values: Sequence[float] | np.ndarray, spec: ModelSpec) -> np.ndarray:
@@ -108,17 +90,11 @@ def polynomial_roots_modulus(poly: np.ndarray) -> np.ndarray:
     """Moduli of the roots of a lag polynomial (coefficients of B^0, B^1, ...).
 
     Stationarity (AR) and invertibility (MA) need every modulus above 1. A constant
-    polynomial has no roots and gives an empty array. Trailing coefficients below the
-    smallest normal float are dropped: ``numpy.roots`` overflows on a subnormal leading
-    coefficient, and such a term moves no root that matters.
+    polynomial has no roots and gives an empty array. Trailing coefficients that are zero
+    or negligible (subnormal ones included) are dropped, and the function never raises; see
+    :func:`forecastaudit.layout.lag_polynomial_roots`, the one root routine.
     """
-    values = np.asarray(poly, dtype=float)
-    kept = np.flatnonzero(np.abs(values) >= np.finfo(float).tiny)
-    trimmed = values[: kept[-1] + 1] if kept.size else values[:0]
-    if trimmed.size <= 1:
-        return np.empty(0)
-    # numpy.roots wants the highest power first.
-    return np.abs(np.roots(trimmed[::-1]))
+    return lag_polynomial_root_moduli(poly)
 
 
 def intercept_to_mean(intercept: float, spec: ModelSpec, params: Mapping[str, float]) -> float:

@@ -16,26 +16,23 @@ from forecastaudit.diagnosis.findings import Finding
 from forecastaudit.diagnosis.rescore import Rescore, canonical_criteria
 from forecastaudit.diagnosis.tolerances import Tolerances
 from forecastaudit.estimate import REFERENCE_KEY, Estimate
-from forecastaudit.layout import polynomial_roots
+from forecastaudit.layout import layout_of
 from forecastaudit.spec import ModelSpec
-
-_FACTOR_WORDS = {
-    "ar": ("regular AR", "stationary"),
-    "sar": ("seasonal AR", "stationary"),
-    "ma": ("regular MA", "invertible"),
-    "sma": ("seasonal MA", "invertible"),
-}
 
 
 def _boundary_findings(
     spec: ModelSpec, key: str, params: Mapping[str, float], tol: Tolerances, *, outside_only: bool
 ) -> list[Finding]:
     findings = []
-    for factor, roots in polynomial_roots(spec, params).items():
+    layout = layout_of(spec)
+    all_roots = layout.roots(params)
+    smallest_moduli = layout.min_root_modulus(params)
+    for factor in layout.factors:
+        roots = all_roots[factor.key]
         if roots.size == 0:
             continue
-        smallest = float(np.min(np.abs(roots)))
-        word, region = _FACTOR_WORDS[factor]
+        smallest = smallest_moduli[factor.key]
+        word, region = factor.description, factor.region
         if smallest < 1.0 or (not outside_only and smallest < 1.0 + tol.root_margin):
             where = "outside" if smallest < 1.0 else "at the edge of"
             findings.append(
@@ -43,7 +40,7 @@ def _boundary_findings(
                     kind="near-boundary",
                     severity="warn",
                     estimator=key,
-                    quantity=factor,
+                    quantity=factor.key,
                     message=(
                         f"The {word} polynomial of {key} has a root of modulus {smallest:.4f}, "
                         f"{where} the {region} region (modulus 1). Estimates and standard "
@@ -53,7 +50,8 @@ def _boundary_findings(
                     values={"min_root_modulus": smallest, "margin": tol.root_margin},
                 )
             )
-        differenced = spec.d if factor == "ma" else spec.D if factor == "sma" else 0
+        # An MA root near 1 cancels a difference of the same kind (regular or seasonal).
+        differenced = 0 if factor.kind != "ma" else spec.D if factor.seasonal else spec.d
         near_one = roots[(np.abs(roots - 1.0) < 2 * tol.root_margin + 0.03)]
         # Over-differencing is a property of the model and the data: said once, of the
         # reference optimum, not again for every estimate near it.
@@ -63,10 +61,10 @@ def _boundary_findings(
                     kind="possible-overdifferencing",
                     severity="warn",
                     estimator=key,
-                    quantity=factor,
+                    quantity=factor.key,
                     message=(
                         f"The {word} polynomial of {key} has a root at {near_one[0].real:.4f}, "
-                        f"near 1, after {'regular' if factor == 'ma' else 'seasonal'} "
+                        f"near 1, after {'seasonal' if factor.seasonal else 'regular'} "
                         "differencing: the MA term nearly cancels a difference, which suggests "
                         "the series was differenced once too often (common practice, no "
                         "source)."
@@ -83,6 +81,17 @@ def _status_findings(e: Estimate) -> list[Finding]:
         return [Finding("unavailable", "info", e.key, None, e.reason)]
     if e.status == "unsupported":
         return [Finding("unsupported", "info", e.key, None, e.reason)]
+    if e.status == "timed-out":
+        return [
+            Finding(
+                "fit-failed",
+                "warn",
+                e.key,
+                None,
+                f"{e.key} gave no result within the time limit and was stopped: {e.reason}",
+                {"status": e.status},
+            )
+        ]
     if e.status == "failed":
         return [
             Finding(
@@ -126,7 +135,7 @@ def _event_findings(e: Estimate) -> list[Finding]:
             )
         )
     for option, default in e.overridden_defaults.items():
-        resolved = e.options.get(option, e.options.get(f"{e.package}.{option}", "see record"))
+        resolved = e.option(option, "see record")
         findings.append(
             Finding(
                 "default-overridden",
@@ -205,7 +214,7 @@ def _definition_findings(e: Estimate, rescore: Rescore) -> list[Finding]:
                 {n: {"native": a, "canonical": b} for n, (a, b) in differing.items()},
             )
         )
-    if "maximum likelihood" not in e.sigma2_definition and e.sigma2_reported != e.sigma2:
+    if e.sigma2_kind != "maximum-likelihood" and e.sigma2_reported != e.sigma2:
         findings.append(
             Finding(
                 "definition-difference",

@@ -12,21 +12,15 @@ import numpy as np
 from scipy import optimize
 from scipy.signal import lfilter
 
-from forecastaudit.conventions import (
-    coefficient_names,
-    difference,
-    parameter_names,
-)
+from forecastaudit.conventions import difference
+from forecastaudit.layout import layout_of
 from forecastaudit.reference.likelihood import (
     Method,
     ReferenceLikelihood,
-    _expanded,
-    _factor_checks,
     evaluate,
     gaussian_loglike,
 )
 from forecastaudit.reference.parameterisation import (
-    _factors,
     ar_to_pacf,
     from_unconstrained,
     pull_inside,
@@ -61,12 +55,13 @@ def conditional_least_squares(
     w = difference(np.asarray(y_transformed, dtype=float).ravel(), spec)
     mean_w = float(np.mean(w)) if w.size else 0.0
     scale = _mu_scale(w)
-    names = coefficient_names(spec)
-    n_ar = spec.p + spec.m * spec.P
+    layout = layout_of(spec)
+    names = layout.coefficient_names
+    n_ar = layout.ar_degree
 
     def residuals(x: np.ndarray) -> np.ndarray:
         params = _params_from_search(spec, x, mean_w, scale)
-        ar, ma = _expanded(spec, params)
+        ar, ma = layout.expanded_coefficients(params)
         mu = params.get("mu", 0.0)
         e = lfilter(np.concatenate(([1.0], -ar)), np.concatenate(([1.0], ma)), w - mu)
         return e[n_ar:]
@@ -274,11 +269,12 @@ def fit_reference(
     if w.size < 1:
         raise ValueError(f"{spec} leaves no observations after differencing; nothing to fit.")
     n = w.size
-    names = coefficient_names(spec)
+    layout = layout_of(spec)
+    names = layout.coefficient_names
     mean_w, scale = float(np.mean(w)), _mu_scale(w)
 
     def profiled_at(params: Mapping[str, float]) -> ReferenceLikelihood:
-        ar, ma = _expanded(spec, params)
+        ar, ma = layout.expanded_coefficients(params)
         mu = float(params["mu"]) if spec.mean else 0.0
         return gaussian_loglike(w, ar, ma, mu, 1.0, method=method, check_stationarity=False)
 
@@ -345,7 +341,7 @@ def fit_reference(
         raise RuntimeError("No start of the reference fit could be used.")
     best = results[best_index]
     params = dict(best.params)
-    ordered = {name: params[name] for name in parameter_names(spec)}
+    ordered = {name: params[name] for name in layout.parameter_names}
     full = evaluate(y_transformed, spec, ordered, method=method)
     errors, covariance, note = _standard_errors(w, spec, ordered, method)
     return ReferenceFit(
@@ -372,7 +368,7 @@ def _is_number(value: Any) -> bool:
     return True
 
 
-def _start_problem(names: list[str], start: Mapping[str, float], spec: ModelSpec) -> str:
+def _start_problem(names: Sequence[str], start: Mapping[str, float], spec: ModelSpec) -> str:
     missing = [name for name in names if name not in start and name != "mu"]
     if missing:
         return f"no value for {missing}"
@@ -387,18 +383,18 @@ def _standard_errors(
     w: np.ndarray, spec: ModelSpec, params: Mapping[str, float], method: Method
 ) -> tuple[dict[str, float], np.ndarray, str]:
     """Observed-information standard errors by a central-difference Hessian."""
-    names = parameter_names(spec)
-    theta = np.array([params[name] for name in names], dtype=float)
+    layout = layout_of(spec)
+    names = layout.parameter_names
+    theta = layout.to_vector(params, include_sigma2=True)
     steps = np.array(
         [_step_scale(name, value, w) for name, value in zip(names, theta, strict=True)]
     )
 
     def loglike(values: np.ndarray) -> float:
-        point = dict(zip(names, values.tolist(), strict=True))
-        stationary, _ = _factor_checks(spec, point)
-        if not stationary:
+        point = layout.from_vector(values, include_sigma2=True)
+        if not layout.is_stationary(point):
             return -math.inf
-        ar, ma = _expanded(spec, point)
+        ar, ma = layout.expanded_coefficients(point)
         mu = point["mu"] if spec.mean else 0.0
         return gaussian_loglike(
             w, ar, ma, mu, point["sigma2"], method=method, check_stationarity=False
@@ -450,12 +446,11 @@ def _standard_errors(
 def _near_boundary(spec: ModelSpec, params: Mapping[str, float], margin: float = 1e-3) -> str:
     """Names of the factors with a partial autocorrelation within ``margin`` of +-1."""
     found = []
-    for names, sign in _factors(spec):
-        if names:
-            coefs = sign * np.array([float(params[name]) for name in names])
-            pacf = ar_to_pacf(coefs)
+    for factor in layout_of(spec).factors:
+        if factor.order:
+            pacf = ar_to_pacf(factor.ar_form(factor.values(params)))
             if not np.all(np.abs(pacf) < 1.0 - margin):
-                found.append("/".join(names))
+                found.append("/".join(factor.names))
     return ", ".join(found)
 
 

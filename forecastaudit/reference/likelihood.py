@@ -17,14 +17,8 @@ import numpy as np
 from scipy.linalg import lapack
 from scipy.signal import lfilter, lfiltic
 
-from forecastaudit.conventions import (
-    ar_polynomial,
-    coefficient_names,
-    difference,
-    ma_polynomial,
-    parameter_names,
-)
-from forecastaudit.reference.parameterisation import _factors, _is_stationary
+from forecastaudit.conventions import difference
+from forecastaudit.layout import is_stationary_polynomial, layout_of
 from forecastaudit.spec import ModelSpec
 
 Method = Literal["auto", "dense", "banded"]
@@ -279,7 +273,7 @@ def gaussian_loglike(
     sigma2 = float(sigma2)
     if not (np.all(np.isfinite(a)) and np.all(np.isfinite(b)) and math.isfinite(float(mu))):
         return _failed(n, sigma2, "invalid", stationary=False, value=math.nan)
-    if check_stationarity and not _is_stationary(a):
+    if check_stationarity and not is_stationary_polynomial(a):
         return _failed(n, sigma2, "non-stationary", stationary=False)
     p, q = a.size, b.size
     u = max(p - 1, q, 0)
@@ -439,24 +433,6 @@ def _log_original_from_transformed(y_transformed: np.ndarray, lam: float) -> np.
 
 
 # ====================================================================== parameter level
-def _expanded(spec: ModelSpec, params: Mapping[str, float]) -> tuple[np.ndarray, np.ndarray]:
-    return -ar_polynomial(spec, params)[1:], ma_polynomial(spec, params)[1:]
-
-
-def _factor_checks(spec: ModelSpec, params: Mapping[str, float]) -> tuple[bool, bool]:
-    """(stationary, invertible), checked factor by factor (cheaper than expanded)."""
-    stationary = invertible = True
-    for names, sign in _factors(spec):
-        if names:
-            coefs = sign * np.array([float(params[name]) for name in names])
-            ok = _is_stationary(coefs)
-            if sign > 0:
-                stationary = stationary and ok
-            else:
-                invertible = invertible and ok
-    return stationary, invertible
-
-
 def evaluate(
     y_transformed: Sequence[float] | np.ndarray,
     spec: ModelSpec,
@@ -496,24 +472,25 @@ def evaluate(
         When a parameter of the spec, sigma2 included, is missing from ``params``, or the
         differenced series is empty.
     """
-    missing = [name for name in parameter_names(spec) if name not in params]
+    layout = layout_of(spec)
+    missing = [name for name in layout.parameter_names if name not in params]
     if missing:
         raise ValueError(
             f"Parameters {missing} of {spec} are missing; pass every name of "
-            f"parameter_names(spec): {parameter_names(spec)}."
+            f"parameter_names(spec): {list(layout.parameter_names)}."
         )
     y = np.asarray(y_transformed, dtype=float).ravel()
     w = difference(y, spec)
     sigma2 = float(params["sigma2"])
-    coefficients = [float(params[name]) for name in coefficient_names(spec)]
-    finite = all(math.isfinite(value) for value in coefficients)
-    stationary, invertible = _factor_checks(spec, params) if finite else (False, False)
+    finite = bool(np.all(np.isfinite(layout.to_vector(params))))
+    stationary = finite and layout.is_stationary(params)
+    invertible = finite and layout.is_invertible(params)
     if not finite:
         result = _failed(w.size, sigma2, "invalid", stationary=False, value=math.nan)
     elif not stationary:
         result = _failed(w.size, sigma2, "non-stationary", stationary=False)
     else:
-        ar, ma = _expanded(spec, params)
+        ar, ma = layout.expanded_coefficients(params)
         mu = float(params["mu"]) if spec.mean else 0.0
         result = gaussian_loglike(w, ar, ma, mu, sigma2, method=method, check_stationarity=False)
     lam = spec.boxcox_lambda

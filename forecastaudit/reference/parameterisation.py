@@ -10,9 +10,7 @@ from collections.abc import Mapping, Sequence
 
 import numpy as np
 
-from forecastaudit.conventions import (
-    coefficient_names,
-)
+from forecastaudit.layout import lag_polynomial_roots, layout_of
 from forecastaudit.spec import ModelSpec
 
 
@@ -68,20 +66,6 @@ def ar_to_pacf(ar: Sequence[float] | np.ndarray) -> np.ndarray:
     return r
 
 
-def _is_stationary(ar: np.ndarray) -> bool:
-    """Step-down (Schur-Cohn) test; plain Python floats for the short factors of a spec."""
-    if ar.size > 8:
-        return bool(np.all(np.abs(ar_to_pacf(ar)) < 1.0))  # NaN compares False
-    a = [float(v) for v in ar]
-    while a:
-        value = a[-1]
-        if not abs(value) < 1.0:  # also catches NaN
-            return False
-        scale = 1.0 - value * value
-        a = [(a[j] + value * a[-2 - j]) / scale for j in range(len(a) - 1)]
-    return True
-
-
 def unconstrained_to_pacf(x: Sequence[float] | np.ndarray) -> np.ndarray:
     """Map reals onto (-1, 1) by ``x / sqrt(1 + x^2)``.
 
@@ -99,18 +83,6 @@ def pacf_to_unconstrained(r: Sequence[float] | np.ndarray) -> np.ndarray:
         return r / np.sqrt(1.0 - r * r)
 
 
-def _factors(spec: ModelSpec) -> list[tuple[list[str], float]]:
-    """The four lag-polynomial factors: their canonical names and the sign turning them into
-    AR form (``1 - sum c_i B^i``): +1 for AR factors, -1 for MA ones (our MA sign is plus)."""
-    m = spec.m
-    return [
-        ([f"ar_lag{i}" for i in range(1, spec.p + 1)], 1.0),
-        ([f"sar_lag{i * m}" for i in range(1, spec.P + 1)], 1.0),
-        ([f"ma_lag{j}" for j in range(1, spec.q + 1)], -1.0),
-        ([f"sma_lag{j * m}" for j in range(1, spec.Q + 1)], -1.0),
-    ]
-
-
 def to_unconstrained(spec: ModelSpec, params: Mapping[str, float]) -> np.ndarray:
     """Unconstrained reals for the coefficients of ``spec``, in ``coefficient_names`` order.
 
@@ -125,30 +97,29 @@ def to_unconstrained(spec: ModelSpec, params: Mapping[str, float]) -> np.ndarray
         Non-finite entries appear for a factor outside the stationary or invertible region;
         use :func:`pull_inside` first.
     """
+    layout = layout_of(spec)
     out: list[float] = []
-    for names, sign in _factors(spec):
-        if names:
-            coefs = sign * np.array([float(params[name]) for name in names])
+    for factor in layout.factors:
+        if factor.order:
+            coefs = factor.ar_form(factor.values(params))
             out.extend(pacf_to_unconstrained(ar_to_pacf(coefs)).tolist())
-    if spec.mean:
-        out.append(float(params.get("mu", 0.0)))
+    out.extend(float(params.get(name, 0.0)) for name in layout.mean_names)
     return np.array(out, dtype=float)
 
 
 def from_unconstrained(spec: ModelSpec, x: Sequence[float] | np.ndarray) -> dict[str, float]:
     """Inverse of :func:`to_unconstrained`: canonical coefficients (sigma2 excluded)."""
+    layout = layout_of(spec)
     values = np.asarray(x, dtype=float).ravel()
-    out: dict[str, float] = {}
+    parts = []
     position = 0
-    for names, sign in _factors(spec):
-        if names:
-            block = values[position : position + len(names)]
-            coefs = sign * pacf_to_ar(unconstrained_to_pacf(block))
-            out.update(zip(names, coefs.tolist(), strict=True))
-            position += len(names)
-    if spec.mean:
-        out["mu"] = float(values[position])
-    return {name: out[name] for name in coefficient_names(spec)}
+    for factor in layout.factors:
+        if factor.order:
+            block = values[position : position + factor.order]
+            parts.append(factor.ar_form(pacf_to_ar(unconstrained_to_pacf(block))))
+            position += factor.order
+    parts.append(values[position : position + len(layout.mean_names)])
+    return layout.from_vector(np.concatenate(parts))
 
 
 def pull_inside(
@@ -170,23 +141,22 @@ def pull_inside(
     out = {name: float(value) for name, value in params.items()}
     moved = False
     limit = 1.0 / (1.0 - margin)
-    for names, sign in _factors(spec):
-        if not names:
+    for factor in layout_of(spec).factors:
+        if not factor.order:
             continue
-        coefs = sign * np.array([float(params[name]) for name in names])
+        coefs = factor.ar_form(factor.values(params))
         pacf = ar_to_pacf(coefs)
         if np.all(np.abs(pacf) < 1.0 - margin):
             continue
-        poly = np.trim_zeros(np.concatenate(([1.0], -coefs)), "b")
-        roots = np.roots(poly[::-1])
+        roots = lag_polynomial_roots(np.concatenate(([1.0], -coefs)))
         roots = np.where(np.abs(roots) < 1.0, 1.0 / np.conj(roots), roots)
         modulus = np.abs(roots)
         roots = np.where(modulus < limit, roots * (limit / modulus), roots)
         fixed = np.real(np.poly(1.0 / roots))  # prod (1 - B / root), ascending in B
-        new = np.zeros(len(names))
+        new = np.zeros(factor.order)
         new[: fixed.size - 1] = -fixed[1:]
         if np.array_equal(new, coefs):
             continue  # near the edge by its partial autocorrelations, but no root to move
-        out.update(zip(names, (sign * new).tolist(), strict=True))
+        out.update(zip(factor.names, factor.ar_form(new).tolist(), strict=True))
         moved = True
     return out, moved

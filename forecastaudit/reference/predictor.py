@@ -30,11 +30,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from forecastaudit.conventions import (
-    ar_polynomial,
-    difference,
-    ma_polynomial,
-)
+from forecastaudit.conventions import difference
+from forecastaudit.layout import layout_of
 from forecastaudit.reference.likelihood import arma_autocovariances
 from forecastaudit.spec import ModelSpec
 
@@ -116,8 +113,7 @@ def best_linear_forecast(
     w = difference(y, spec)
     cond = w[-FORECAST_CONDITION_MAX:]
     n, h = cond.size, int(steps)
-    ar = -ar_polynomial(spec, params)[1:]
-    ma = ma_polynomial(spec, params)[1:]
+    ar, ma = layout_of(spec).expanded_coefficients(params)
     mu = float(params.get("mu", 0.0))
     sigma2 = float(params["sigma2"])
     gamma = arma_autocovariances(ar, ma, sigma2, nlags=n + h - 1)

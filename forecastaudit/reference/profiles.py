@@ -9,10 +9,8 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from forecastaudit.conventions import (
-    difference,
-    parameter_names,
-)
+from forecastaudit.conventions import difference
+from forecastaudit.layout import layout_of
 from forecastaudit.reference.fit import _mu_scale
 from forecastaudit.reference.likelihood import evaluate
 from forecastaudit.spec import ModelSpec
@@ -55,13 +53,14 @@ def profile_line(
         ``-inf``; points where the interpolated sigma2 is not positive have a NaN
         ``loglike``.
     """
-    names = parameter_names(spec)
-    a = np.array([float(params_a[name]) for name in names])
-    b = np.array([float(params_b[name]) for name in names])
+    layout = layout_of(spec)
+    names = layout.parameter_names
+    a = layout.to_vector(params_a, include_sigma2=True)
+    b = layout.to_vector(params_b, include_sigma2=True)
     t = np.linspace(t_range[0], t_range[1], int(n_points))
     rows = []
     for position in t:
-        point = dict(zip(names, ((1.0 - position) * a + position * b).tolist(), strict=True))
+        point = layout.from_vector((1.0 - position) * a + position * b, include_sigma2=True)
         value = evaluate(y_transformed, spec, point)
         rows.append(
             {
@@ -108,7 +107,7 @@ def profile_grid(
         ``profiled_loglike`` (2-D arrays, shape ``(len(y), len(x))``, row i at ``y[i]``).
         ``profiled_loglike`` concentrates sigma2 out and does not move with a sigma2 axis.
     """
-    all_names = parameter_names(spec)
+    all_names = list(layout_of(spec).parameter_names)
     for name in names:
         if name not in all_names:
             raise ValueError(f"{name!r} is not a parameter of {spec}; choose from {all_names}.")
