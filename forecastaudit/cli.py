@@ -31,20 +31,10 @@ _EPILOG = """exit codes:
 """
 
 
-def _parse_tolerances(items: Sequence[str] | None) -> dict[str, float]:
-    out: dict[str, float] = {}
-    for item in items or []:
-        name, sep, value = item.partition("=")
-        if not sep:
-            raise ForecastAuditError(
-                f"--tolerance expects NAME=VALUE (e.g. loglike_atol=0.05), got {item!r}."
-            )
-        try:
-            number = float(value)
-        except ValueError:
-            raise ForecastAuditError(f"--tolerance {name}: {value!r} is not a number.") from None
-        out[name.strip()] = int(number) if name.strip() == "min_independent_engines" else number
-    return out
+def _parse_tolerances(items: Sequence[str] | None) -> dict[str, Any]:
+    from forecastaudit.diagnosis.tolerances import parse_overrides
+
+    return parse_overrides(list(items or []), where="--tolerance")
 
 
 def _parse_levels(text: str) -> tuple[float, ...]:
@@ -157,6 +147,7 @@ def _cmd_audit(args: argparse.Namespace) -> int:
         origins=args.origins,
         order_search=args.order_search,
         progress=not args.quiet,
+        production=args.production,
     )
     return _finish(report, Path(args.out) if args.out else None)
 
@@ -260,6 +251,11 @@ def build_parser() -> argparse.ArgumentParser:
         action="append",
         metavar="NAME=VALUE",
         help="override a tolerance, e.g. loglike_atol=0.05 (repeatable)",
+    )
+    run.add_argument(
+        "--production",
+        default="statsmodels-sarimax",
+        help="the estimator the team ships; the verdict is about it (default: %(default)s)",
     )
     run.add_argument("--horizon", type=int, help="steps to forecast (default: the period)")
     run.add_argument(

@@ -25,10 +25,13 @@ from forecastaudit.spec import ModelSpec
 __all__ = [
     "FitOutcome",
     "FitTask",
+    "OwnLikelihoodTask",
     "SearchTask",
     "fit_tasks",
     "fit_unit",
+    "own_loglike_unit",
     "run_fits",
+    "run_own_loglikes",
     "run_searches",
     "search_unit",
 ]
@@ -235,3 +238,47 @@ def run_searches(
             )
         )
     return results
+
+
+@dataclass(frozen=True)
+class OwnLikelihoodTask:
+    """An adapter's own log-likelihood of one series at given parameter sets."""
+
+    key: str
+    request: FitRequest
+    points: tuple[Mapping[str, float], ...]
+    adapter: type | None = field(default=None, compare=False)
+
+
+def own_loglike_unit(task: OwnLikelihoodTask) -> tuple[float, ...]:
+    """Evaluate the library's own likelihood at each point (module level, for workers)."""
+    cls = task.adapter if task.adapter is not None else adapter_class(task.key)
+    adapter = cls()
+    if not adapter.capabilities.own_loglike:
+        return tuple(float("nan") for _ in task.points)
+    return tuple(adapter.loglike_at(task.request, dict(p)) for p in task.points)
+
+
+def run_own_loglikes(
+    tasks: Sequence[OwnLikelihoodTask],
+    backend: Backend | int | None = None,
+    *,
+    time_limit: float | None = DEFAULT_TIME_LIMIT,
+) -> list[tuple[float, ...]]:
+    """Own log-likelihoods on the execution seam; NaN where a unit gave no value."""
+    owned = not isinstance(backend, Backend)
+    runner = make_backend(backend)
+    try:
+        outcomes = runner.map(
+            own_loglike_unit,
+            list(tasks),
+            labels=[f"{t.key} own likelihood" for t in tasks],
+            time_limit=time_limit if runner.enforces_time_limit else None,
+        )
+    finally:
+        if owned:
+            runner.close()
+    return [
+        tuple(o.value) if o.ok else tuple(float("nan") for _ in t.points)
+        for t, o in zip(tasks, outcomes, strict=True)
+    ]

@@ -2,13 +2,16 @@
 
 from __future__ import annotations
 
+import dataclasses
 import datetime as _dt
+import math
 from collections.abc import Iterable, Mapping, Sequence
 from typing import Any
 
 import numpy as np
 import pandas as pd
 
+from forecastaudit.adapters.protocol import FitRequest
 from forecastaudit.adapters.registry import adapter_class, available_estimators
 from forecastaudit.conventions import (
     coefficient_names,
@@ -16,7 +19,14 @@ from forecastaudit.conventions import (
     information_criteria,
     parameter_names,
 )
-from forecastaudit.diagnosis.diagnose import diagnose
+from forecastaudit.diagnosis.diagnose import (
+    CAUSE_KINDS,
+    OwnObjective,
+    _severity,
+    classify,
+    diagnose,
+    merge_wrapper_findings,
+)
 from forecastaudit.diagnosis.findings import Finding
 from forecastaudit.diagnosis.forecasts import (
     back_transform,
@@ -26,16 +36,26 @@ from forecastaudit.diagnosis.forecasts import (
     spread_band,
 )
 from forecastaudit.diagnosis.holdout import HoldoutResult, run_holdout
+from forecastaudit.diagnosis.materiality import Materiality, measure_materiality
 from forecastaudit.diagnosis.rescore import Rescore, canonical_criteria
 from forecastaudit.diagnosis.tables import likelihood_table, parameter_table
 from forecastaudit.diagnosis.tolerances import Tolerances
 from forecastaudit.errors import EstimatorError, SeriesError, SpecError
 from forecastaudit.estimate import REFERENCE_ENGINE, REFERENCE_KEY, Estimate, Forecast
-from forecastaudit.fitting import DEFAULT_TIME_LIMIT, fit_tasks, run_fits
+from forecastaudit.fitting import (
+    DEFAULT_TIME_LIMIT,
+    OwnLikelihoodTask,
+    fit_tasks,
+    run_fits,
+    run_own_loglikes,
+)
 from forecastaudit.result import AuditResult
 from forecastaudit.run import Backend, make_backend
 from forecastaudit.series import PreparedSeries, check_length, prepare_series
 from forecastaudit.spec import ModelSpec
+
+#: The production estimator when the caller names none (see :func:`audit`).
+DEFAULT_PRODUCTION = "statsmodels-sarimax"
 
 
 def _resolve_spec(spec: ModelSpec | str, series_period: int | None) -> ModelSpec:
@@ -130,6 +150,7 @@ def audit(
     progress: bool = False,
     workers: int | Backend | None = None,
     time_limit: float | None = DEFAULT_TIME_LIMIT,
+    production: str | None = DEFAULT_PRODUCTION,
 ) -> AuditResult:
     """Fit ``spec`` through every estimator, re-score under the reference likelihood, diagnose.
 
@@ -173,6 +194,14 @@ def audit(
         N >= 2 in N local worker processes, which fit the estimators (and the holdout
         origins) concurrently; or an execution backend from :mod:`forecastaudit.run`,
         reused as it is (e.g. across several audits).
+    production : str, optional
+        The estimator the team ships (default ``"statsmodels-sarimax"``, the engine behind
+        four of the five built-in adapters; when it is not among ``estimators``, the first
+        of them). The verdict is about it: is its estimate at the reference optimum, is it
+        corroborated by enough independent engines (the reference counts as one), and does
+        any disagreement matter for its forecasts. Other engines' problems are notes unless
+        the policy (``Tolerances.fail_on_other_engines``) says otherwise. None judges every
+        estimator as if it were the production one.
     time_limit : float, optional
         Seconds one estimator's fit and forecast may take, where the backend can stop it
         (worker processes; a fit in this process cannot be stopped). Past it the estimator
@@ -224,6 +253,7 @@ def audit(
             holdout,
             origins,
             order_search,
+            production=_resolve_production(production, keys),
             backend=backend,
             time_limit=time_limit,
             progress=progress,
@@ -245,6 +275,7 @@ def _audit_stages(
     origins: int,
     order_search: bool,
     *,
+    production: str | None,
     backend: Backend,
     time_limit: float | None,
     progress: bool,
@@ -279,11 +310,10 @@ def _audit_stages(
         )
         for k, s in scored.items()
     }
-    findings = diagnose(spec, estimates, rescores, reference, standard_errors, tol)
     all_estimates = {**estimates, REFERENCE_KEY: reference}
-    profiles, grid = _likelihood_profiles(_reference, y_t, spec, estimates, reference, findings)
 
     # Forecasts from the full series, with each library's own intervals.
+    early: list[Finding] = []
     transformed: dict[str, Forecast] = {}
     for key, e in estimates.items():
         fc = library_forecasts.get(key)
@@ -291,7 +321,7 @@ def _audit_stages(
             if fc.ok:
                 transformed[key] = fc
             else:
-                findings.append(
+                early.append(
                     Finding(
                         "fit-failed",
                         "warn",
@@ -304,11 +334,6 @@ def _audit_stages(
         y_t, spec, reference.params, steps, level_tuple
     )
     forecasts = {k: back_transform(fc, spec) for k, fc in transformed.items()}
-    engines = {k: all_estimates[k].engine for k in forecasts}
-    spread = spread_band(forecasts, engines, REFERENCE_KEY, max(level_tuple)) if forecasts else None
-    findings += forecast_findings(forecasts, transformed, estimates, REFERENCE_KEY, tol)
-    residuals = {k: fc.residuals for k, fc in transformed.items() if fc.residuals is not None}
-    residual_table = residual_checks(residuals, spec, len(series)) if residuals else None
 
     holdout_result = None
     if holdout:
@@ -324,7 +349,50 @@ def _audit_stages(
             progress=progress,
         )
         for key, reason in holdout_result.failures.items():
-            findings.append(Finding("holdout-failure", "warn", key, "holdout", reason))
+            early.append(Finding("holdout-failure", "warn", key, "holdout", reason))
+
+    # Each estimator judged against its own objective, and every disagreement measured in
+    # decision units, before the diagnosis.
+    own = _own_objectives(estimates, y_t, spec, reference.params, backend, time_limit)
+    accuracy = (
+        holdout_result.accuracy["mase"].to_dict()
+        if holdout_result is not None and "mase" in holdout_result.accuracy
+        else None
+    )
+    materiality = {
+        key: measure_materiality(key, transformed, forecasts, REFERENCE_KEY, tol, accuracy)
+        for key, e in estimates.items()
+        if e.ok
+    }
+    remedies = _check_remedies(
+        estimates, rescores, reference, standard_errors, own, y_t, spec, backend, time_limit
+    )
+    findings = diagnose(
+        spec,
+        estimates,
+        rescores,
+        reference,
+        standard_errors,
+        tol,
+        production=production,
+        own=own,
+        materiality=materiality,
+        remedies=remedies,
+    )
+    findings += early
+    profiles, grid = _likelihood_profiles(_reference, y_t, spec, estimates, reference, findings)
+    engines = {k: all_estimates[k].engine for k in forecasts}
+    spread = spread_band(forecasts, engines, REFERENCE_KEY, max(level_tuple)) if forecasts else None
+    findings += _with_policy_severity(
+        forecast_findings(forecasts, transformed, estimates, REFERENCE_KEY, tol),
+        materiality,
+        production,
+        tol,
+        {f.estimator for f in findings if f.kind in CAUSE_KINDS and f.estimator},
+    )
+    residuals = {k: fc.residuals for k, fc in transformed.items() if fc.residuals is not None}
+    residual_table = residual_checks(residuals, spec, len(series)) if residuals else None
+
     search_result = None
     if order_search:
         from forecastaudit.search.order_search import audit_order_search
@@ -339,6 +407,7 @@ def _audit_stages(
         )
         findings += search_result.findings
     order = {"fail": 0, "warn": 1, "info": 2}
+    findings = merge_wrapper_findings(findings, estimates)
     findings.sort(key=lambda f: order[f.severity])
     for key, e in all_estimates.items():
         if key in rescores and e.ok and e.n_w:
@@ -369,9 +438,129 @@ def _audit_stages(
             "origins": origins if holdout else None,
             "order_search": order_search,
             "point_forecast": point_kind(spec),
+            "production": production,
         },
+        materiality={k: m.to_dict() for k, m in materiality.items()},
         created=_dt.datetime.now(_dt.UTC).replace(microsecond=0).isoformat(),
     )
+
+
+def _resolve_production(production: str | None, keys: list[str]) -> str | None:
+    if production is None:
+        return None
+    if not isinstance(production, str):
+        raise EstimatorError(
+            f"production must be an estimator key (e.g. 'statsmodels-sarimax'), got "
+            f"{type(production).__name__}."
+        )
+    if production in keys:
+        return production
+    if production == DEFAULT_PRODUCTION:
+        return keys[0]
+    raise EstimatorError(
+        f"The production estimator {production!r} is not among the estimators run "
+        f"({', '.join(keys)}); add it to estimators, or name one of those as production."
+    )
+
+
+def _own_objectives(
+    estimates: Mapping[str, Estimate],
+    y_t: np.ndarray,
+    spec: ModelSpec,
+    optimum: Mapping[str, float],
+    backend: Backend,
+    time_limit: float | None,
+) -> dict[str, OwnObjective]:
+    """Each estimator's own likelihood at its estimate and at the reference optimum."""
+    keys = [k for k, e in estimates.items() if e.ok and adapter_class(k).capabilities.own_loglike]
+    request = FitRequest(np.asarray(y_t, dtype=float), spec)
+    tasks = [
+        OwnLikelihoodTask(k, request, (dict(estimates[k].params), dict(optimum)), adapter_class(k))
+        for k in keys
+    ]
+    values = run_own_loglikes(tasks, backend, time_limit=time_limit)
+    return {
+        k: OwnObjective(at_estimate=v[0], at_reference=v[1])
+        for k, v in zip(keys, values, strict=True)
+    }
+
+
+def _check_remedies(
+    estimates: Mapping[str, Estimate],
+    rescores: Mapping[str, Rescore],
+    reference: Estimate,
+    standard_errors: Mapping[str, float],
+    own: Mapping[str, OwnObjective],
+    y_t: np.ndarray,
+    spec: ModelSpec,
+    backend: Backend,
+    time_limit: float | None,
+) -> dict[str, str]:
+    """Re-run once, rescaled, each estimator whose objective differs through a prior that
+    depends on the series' scale: does the rescaled fit reproduce the reference optimum?"""
+    keys = [
+        k
+        for k, e in estimates.items()
+        if e.ok
+        and k in rescores
+        and classify(spec, e, rescores[k], reference, standard_errors, own.get(k))
+        == "objective-differs"
+        and "diffuse" in e.loglike_definition
+        and "exact diffuse" not in e.loglike_definition
+    ]
+    level = float(np.median(np.abs(y_t))) if len(y_t) else 0.0
+    if not keys or level < 100.0:
+        return {}
+    scale = 10.0 ** math.floor(math.log10(level))
+    outcomes = run_fits(fit_tasks(keys, y_t / scale, spec), backend, time_limit=time_limit)
+    remedies = {}
+    for key, outcome in zip(keys, outcomes, strict=True):
+        e = outcome.estimate
+        if not e.ok:
+            remedies[key] = f"Re-run on the series divided by {scale:g}: {e.status} ({e.reason})."
+            continue
+        # Coefficients do not depend on the scale; mu and sigma2 scale with it.
+        worst = max(
+            (
+                abs(e.params[n] - reference.params[n]) / standard_errors[n]
+                for n in coefficient_names(spec)
+                if n != "mu" and math.isfinite(standard_errors.get(n, math.nan))
+            ),
+            default=0.0,
+        )
+        remedies[key] = (
+            f"Checked: refitted on the series divided by {scale:g}, {key}'s coefficients are "
+            f"within {worst:.3f} reference standard errors of the reference optimum"
+            + (
+                ", so the rescaled fit agrees."
+                if worst < 0.1
+                else ", so rescaling alone is not enough."
+            )
+        )
+    return remedies
+
+
+def _with_policy_severity(
+    findings: list[Finding],
+    materiality: Mapping[str, Materiality],
+    production: str | None,
+    tol: Tolerances,
+    explained: set[str],
+) -> list[Finding]:
+    """Forecast and interval differences get their severity from the policy: beyond
+    tolerance, they fail only when material and about the production estimator."""
+    out = []
+    for f in findings:
+        found = materiality.get(f.estimator or "")
+        if f.severity != "info" and found is not None:
+            severity = _severity(f.estimator or "", True, found.material, production, tol)
+            if f.estimator in explained:
+                # The estimate's cause finding already states these differences in its
+                # materiality: kept for the detail, not counted again.
+                severity = "info"
+            f = dataclasses.replace(f, severity=severity)
+        out.append(f)
+    return out
 
 
 def _check_levels(levels: Sequence[float]) -> tuple[float, ...]:

@@ -62,6 +62,13 @@ def pytest_addoption(parser: pytest.Parser) -> None:
         help="comma-separated estimator keys",
     )
     group.addoption(
+        "--audit-production",
+        dest="audit_production",
+        default=None,
+        metavar="KEY",
+        help="the production estimator the verdict is about (default statsmodels-sarimax)",
+    )
+    group.addoption(
         "--audit-tolerance",
         dest="audit_tolerance",
         action="append",
@@ -74,6 +81,7 @@ def pytest_addoption(parser: pytest.Parser) -> None:
         "audit_update_baselines", "write the baselines from this run", type="bool", default=False
     )
     parser.addini("audit_estimators", "comma-separated estimator keys", default="")
+    parser.addini("audit_production", "the production estimator the verdict is about", default="")
     parser.addini(
         "audit_tolerances", "tolerance overrides, NAME=VALUE per line", type="linelist", default=[]
     )
@@ -94,17 +102,16 @@ class _Settings:
         )
         keys = config.getoption("audit_estimators") or config.getini("audit_estimators")
         self.estimators = [k.strip() for k in keys.split(",") if k.strip()] or None
+        production = config.getoption("audit_production") or config.getini("audit_production")
+        self.production: str | None = production.strip() or None
         items = config.getoption("audit_tolerance") or config.getini("audit_tolerances")
-        self.tolerances: dict[str, float] = {}
-        for item in items:
-            name, sep, value = item.partition("=")
-            if not sep:
-                raise pytest.UsageError(
-                    f"audit tolerance {item!r} is not NAME=VALUE (e.g. loglike_atol=0.05)"
-                )
-            number = float(value)
-            name = name.strip()
-            self.tolerances[name] = int(number) if name == "min_independent_engines" else number
+        from forecastaudit.diagnosis.tolerances import parse_overrides
+        from forecastaudit.errors import ToleranceError
+
+        try:
+            self.tolerances: dict[str, Any] = parse_overrides(list(items), where="audit tolerance")
+        except ToleranceError as exc:
+            raise pytest.UsageError(str(exc)) from None
 
 
 def _baseline_name(name: str) -> str:
@@ -136,6 +143,8 @@ def model_audit(request: pytest.FixtureRequest) -> Callable[..., Any]:
         y: Any, spec: Any, *, name: str | None = None, baseline: bool = True, **kwargs: Any
     ) -> Any:
         kwargs.setdefault("estimators", settings.estimators)
+        if settings.production:
+            kwargs.setdefault("production", settings.production)
         tolerances = kwargs.pop("tolerances", None)
         if tolerances is None and settings.tolerances:
             tolerances = settings.tolerances

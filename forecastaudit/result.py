@@ -89,22 +89,65 @@ class AuditResult:
     likelihood_grid: dict[str, Any] | None = None
     order_search: Any = None
     options: dict[str, Any] = field(default_factory=dict)
+    materiality: dict[str, dict[str, Any]] = field(default_factory=dict)
     created: str = ""
 
     # ------------------------------------------------------------------ verdict
     @property
     def passed(self) -> bool:
-        """True when no finding has severity ``fail``."""
+        """True for the outcomes ``pass`` and ``pass-with-notes``: no finding fails."""
         return not any(f.severity == "fail" for f in self.findings)
 
     @property
     def verdict(self) -> str:
-        """``"pass"`` or ``"fail"``."""
-        return "pass" if self.passed else "fail"
+        """``"pass"``, ``"pass-with-notes"`` or ``"fail"``.
+
+        ``fail``: a finding fails under the stated policy (see :attr:`policy`).
+        ``pass-with-notes``: nothing fails, and some findings ask a reviewer to look
+        (severity ``warn``): another engine's shortfall, a model finding, a difference
+        within the materiality thresholds. ``pass``: nothing beyond information.
+        """
+        if not self.passed:
+            return "fail"
+        return "pass-with-notes" if any(f.severity == "warn" for f in self.findings) else "pass"
+
+    @property
+    def production(self) -> str | None:
+        """The production estimator the verdict is about (None: every estimator)."""
+        return self.options.get("production")
+
+    @property
+    def policy(self) -> dict[str, Any]:
+        """The stated policy: the production estimator and what makes the audit fail."""
+        tol = self.tolerances
+        production = self.production or "every estimator"
+        return {
+            "production": self.production,
+            "fails_when": [
+                f"the production estimate ({production}) is beyond tolerance of the reference "
+                "optimum and the difference is material",
+                f"fewer than {tol.min_independent_engines} independent engines (the reference "
+                "counts as one) corroborate the production estimate",
+                "the production estimator produced no estimate, or fitted a different model",
+                *(
+                    ["another engine's disagreement is beyond tolerance and material"]
+                    if tol.fail_on_other_engines
+                    else []
+                ),
+                *(["a finding about the model itself"] if tol.fail_on_model_findings else []),
+            ],
+            "materiality": {
+                "forecast_se": tol.material_forecast_se,
+                "forecast_percent": tol.material_forecast_percent,
+                "width_rtol": tol.material_width_rtol,
+                "accuracy_rtol": tol.material_accuracy_rtol,
+            },
+        }
 
     @property
     def independent_engines(self) -> list[str]:
-        """Independent engines whose estimates agree with the reference optimum."""
+        """Independent engines (the reference counts as one) corroborating the production
+        estimate."""
         for f in self.findings:
             if f.kind == "engine-count":
                 return list(f.values.get("agreeing", []))

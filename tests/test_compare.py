@@ -11,7 +11,7 @@ import math
 import numpy as np
 import pytest
 
-from forecastaudit.diagnosis.diagnose import diagnose
+from forecastaudit.diagnosis.diagnose import OwnObjective, diagnose
 from forecastaudit.diagnosis.rescore import Rescore
 from forecastaudit.diagnosis.tolerances import Tolerances
 from forecastaudit.estimate import CapturedWarning, Estimate
@@ -67,7 +67,8 @@ def test_agreeing_independent_engines_pass():
     findings = _run(estimates, rescores)
     assert not [f for f in findings if f.severity == "fail"]
     count = next(f for f in findings if f.kind == "engine-count")
-    assert count.values["agreeing"] == ["engine-1", "engine-2"]
+    # The reference counts as one independent engine (documented policy).
+    assert count.values["agreeing"] == ["engine-1", "engine-2", "forecastaudit-reference"]
 
 
 def test_wrappers_of_one_engine_count_once():
@@ -76,10 +77,10 @@ def test_wrappers_of_one_engine_count_once():
         "b": _estimate("b", "engine-1", BEST),
     }
     rescores = {k: Rescore(244.70, 244.70, 0.0) for k in estimates}
-    findings = _run(estimates, rescores)
+    findings = _run(estimates, rescores, Tolerances(min_independent_engines=3))
     count = next(f for f in findings if f.kind == "engine-count")
     assert count.severity == "fail"
-    assert count.values["agreeing"] == ["engine-1"]
+    assert count.values["agreeing"] == ["engine-1", "forecastaudit-reference"]
 
 
 def test_stopped_short_is_named_with_its_gap():
@@ -89,7 +90,10 @@ def test_stopped_short_is_named_with_its_gap():
         "b": _estimate("b", "engine-2", short, converged=False, optimizer={"code": 2}),
     }
     rescores = {"a": Rescore(244.70, 244.70, 0.0), "b": Rescore(244.64, 244.65, 0.05)}
-    findings = _run(estimates, rescores)
+    # Under its own likelihood the optimum is better than its estimate: its optimiser
+    # stopped short of its own objective.
+    own = {"b": OwnObjective(at_estimate=250.0, at_reference=250.05)}
+    findings = diagnose(SPEC, estimates, rescores, _reference(), SE, Tolerances(), own=own)
     kinds = _kinds(findings, "b")
     assert ("stopped-short", "fail") in kinds
     assert ("not-converged", "warn") in kinds
@@ -108,6 +112,25 @@ def test_equal_likelihood_different_parameters_is_a_flat_direction():
     findings = _run(estimates, rescores)
     assert ("flat-likelihood", "warn") in _kinds(findings, "b")
     assert ("stopped-short", "fail") not in _kinds(findings, "b")
+
+
+def test_own_objective_separates_stopping_short_from_another_objective():
+    short = {**BEST, "sma_lag12": -0.40}
+    estimates = {
+        "b": _estimate("b", "engine-2", short, loglike_definition="approximate diffuse prior")
+    }
+    rescores = {"b": Rescore(240.0, 240.0, 4.0)}
+    higher_at_optimum = {"b": OwnObjective(at_estimate=-10.0, at_reference=-6.0)}
+    lower_at_optimum = {"b": OwnObjective(at_estimate=-6.0, at_reference=-10.0)}
+    for own, kind in (
+        (higher_at_optimum, "stopped-short"),
+        (lower_at_optimum, "objective-differs"),
+    ):
+        found = diagnose(SPEC, estimates, rescores, _reference(), SE, Tolerances(), own=own)
+        assert kind in {f.kind for f in found if f.estimator == "b"}
+    # Without its own likelihood, the audit says it cannot tell.
+    found = diagnose(SPEC, estimates, rescores, _reference(), SE, Tolerances())
+    assert "short-of-optimum" in {f.kind for f in found if f.estimator == "b"}
 
 
 def test_tolerance_in_standard_errors_with_absolute_floor():
@@ -149,7 +172,7 @@ def test_extra_terms_are_a_different_model():
     findings = _run(estimates, rescores)
     assert ("different-model", "fail") in _kinds(findings, "b")
     count = next(f for f in findings if f.kind == "engine-count")
-    assert count.values["agreeing"] == ["engine-1"]
+    assert count.values["agreeing"] == ["engine-1", "forecastaudit-reference"]
 
 
 def test_status_and_event_findings():
@@ -175,8 +198,9 @@ def test_ma_root_near_one_after_differencing_flags_overdifferencing():
     estimates = {"a": _estimate("a", "engine-1", near)}
     findings = diagnose(SPEC, estimates, {"a": Rescore(1.0, 1.0, 0.0)}, reference, SE, Tolerances())
     kinds = _kinds(findings, "reference")
-    assert ("near-boundary", "warn") in kinds
+    # One finding per cause: the over-differencing finding replaces the edge-of-region one.
     assert ("possible-overdifferencing", "warn") in kinds
+    assert ("near-boundary", "warn") not in kinds
 
 
 def test_polynomial_roots_closed_form():

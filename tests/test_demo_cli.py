@@ -44,7 +44,7 @@ def test_demo_command_writes_a_record(demo_run: tuple[int, Path]) -> None:
     record = fa.load_record(out / RECORD_NAME)
     assert record["spec"]["text"] == str(fa.DEMO_SPEC)
     assert record["provenance"]["data"]["n"] == 180
-    assert record["verdict"] in {"pass", "fail"}
+    assert record["verdict"] in {"pass", "pass-with-notes", "fail"}
     assert not [p for p in out.iterdir() if p.name.endswith(".tmp")]
     html = (out / HTML_NAME).read_text()
     assert "red_cell_units" in html and "not proof" in html
@@ -65,12 +65,14 @@ def test_audit_command_on_a_csv(tmp_path: Path, capsys: pytest.CaptureFixture[st
             "ARIMA(0,1,1)x(0,1,1)12 +log",
             "--estimators",
             "statsmodels-sarimax,statsmodels-arima",
+            "--tolerance",
+            "min_independent_engines=3",
             "--out",
             str(out),
             "--quiet",
         ]
     )
-    # Two wrappers of one engine cannot meet the default of two independent engines.
+    # Two wrappers of one engine and the reference cannot meet a policy of three engines.
     assert code == EXIT_FINDINGS
     record = json.loads((out / RECORD_NAME).read_text())
     assert record["provenance"]["data"]["period"] == 12

@@ -4,7 +4,19 @@ from __future__ import annotations
 
 import json
 
+import numpy as np
 import pytest
+
+import forecastaudit as fa
+
+
+@pytest.fixture(autouse=True, scope="module")
+def _libraries_imported_once() -> None:
+    """pytester's in-process runs restore ``sys.modules`` afterwards, and numpy's compiled
+    modules cannot be loaded twice in one process: so every module the inner audits use is
+    imported here, in this process, first (by one small audit of the same kind)."""
+    y = 20 + np.random.default_rng(0).normal(size=60)
+    fa.audit(y, "ARIMA(1,0,0) +mean", estimators=["statsmodels-sarimax", "statsforecast"])
 
 INI = """
 [pytest]
@@ -80,12 +92,23 @@ class Shifted(StatsmodelsSarimax):
         out = super()._fit(request)
         out.params = {**out.params, "ar_lag1": out.params["ar_lag1"] + 0.2}
         return out
+
+    def _forecast(self, native, steps, levels):
+        # Its forecasts move with it, so the disagreement is material.
+        out = super()._forecast(native, steps, levels)
+        out.mean = out.mean + 2.0
+        out.lower = {k: v + 2.0 for k, v in out.lower.items()}
+        out.upper = {k: v + 2.0 for k, v in out.upper.items()}
+        return out
 """
     )
     pytester.makepyfile(test_model=TEST_FILE.replace("SHIFT", "0.0"))
-    result = pytester.runpytest_subprocess()
+    # The shifted adapter is the production estimator: its disagreement fails the audit.
+    result = pytester.runpytest_subprocess("--audit-production", "shifted")
     result.assert_outcomes(failed=1)
-    result.stdout.fnmatch_lines(["*found problems beyond tolerance*", "*stopped-short*shifted*"])
+    result.stdout.fnmatch_lines(
+        ["*found problems beyond tolerance*", "*production-estimate*shifted*"]
+    )
 
 
 def test_marker_and_options_are_registered(pytester: pytest.Pytester) -> None:

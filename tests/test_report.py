@@ -27,6 +27,8 @@ from forecastaudit.report.markdown import WRITERS, escape_markdown, render_markd
 from forecastaudit.report.sections import KINDS
 from forecastaudit.result import CAUTION
 
+VERDICT_WORD = {k: v["word"] for k, v in content.VERDICT_LABELS.items()}
+
 HOSTILE = '<script>alert(1)</script>&"'
 CHROMIUM = "/usr/bin/chromium"
 
@@ -74,7 +76,7 @@ def test_html_opens_with_the_verdict(report: fa.AuditResult, html: str) -> None:
     verdict = re.search(r'<section id="verdict".*?</section>', html, re.S)
     assert verdict is not None
     block = verdict.group(0)
-    assert report.verdict.upper() in block
+    assert content.VERDICT_LABELS[report.verdict]["word"] in block
     assert str(report.spec) in block
     assert f"{len(report.series)} observations" in block
     labels = report.series.labels()
@@ -168,7 +170,8 @@ def test_hostile_strings_are_escaped_everywhere(hostile: fa.AuditResult) -> None
         assert "<b>col" not in text
         assert _escaped(HOSTILE) in text
     page = render_html(hostile)
-    assert f"<title>{hostile.verdict.upper()}: {hostile.spec} on {_escaped(HOSTILE)}" in page
+    word = content.VERDICT_LABELS[hostile.verdict]["word"]
+    assert f"<title>{word}: {hostile.spec} on {_escaped(HOSTILE)}" in page
     assert _escaped("x_<b>col|umn</b>") in page
 
 
@@ -176,7 +179,7 @@ def test_hostile_strings_are_escaped_everywhere(hostile: fa.AuditResult) -> None
 def test_compact_view(report: fa.AuditResult, html: str) -> None:
     compact = report._repr_html_()
     assert compact == render_compact_html(report)
-    assert report.verdict.upper() in compact
+    assert content.VERDICT_LABELS[report.verdict]["word"] in compact
     assert str(report.spec) in compact
     assert "<table>" in compact
     for name in report.parameters.index:
@@ -235,7 +238,7 @@ def test_markdown_tables_are_well_formed(report: fa.AuditResult, markdown: str) 
 def test_markdown_verdict_findings_and_caution(report: fa.AuditResult, markdown: str) -> None:
     assert markdown.startswith("## forecastaudit: ")
     assert f"**Verdict:** {content.VERDICT_LABELS[report.verdict]['symbol']}" in markdown
-    assert report.verdict.upper() in markdown.splitlines()[0]
+    assert content.VERDICT_LABELS[report.verdict]["word"] in markdown.splitlines()[0]
     for finding in report.findings_of(severity="fail") + report.findings_of(severity="warn"):
         assert escape_markdown(finding.message) in markdown
     infos = report.findings_of(severity="info")
@@ -405,7 +408,7 @@ def test_page_loads_in_headless_chromium(report: fa.AuditResult, html: str) -> N
     dom = result.stdout
     assert result.returncode == 0, result.stderr[-2000:]
     assert re.search(
-        rf'<span class="badge {report.verdict} big">.*?{report.verdict.upper()}</span>', dom
+        rf'<span class="badge {report.verdict} big">.*?{VERDICT_WORD[report.verdict]}</span>', dom
     )
     assert dom.count('src="data:image/png;base64,') == html.count('src="data:image/png;base64,')
     assert 'id="caution"' in dom

@@ -8,16 +8,24 @@ from __future__ import annotations
 
 import math
 from collections.abc import Mapping
+from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 
 from forecastaudit.conventions import coefficient_names
 from forecastaudit.diagnosis.findings import Finding
+from forecastaudit.diagnosis.materiality import Materiality
 from forecastaudit.diagnosis.rescore import Rescore, canonical_criteria
 from forecastaudit.diagnosis.tolerances import Tolerances
-from forecastaudit.estimate import REFERENCE_KEY, Estimate
+from forecastaudit.estimate import REFERENCE_ENGINE, REFERENCE_KEY, Estimate
 from forecastaudit.layout import layout_of
 from forecastaudit.spec import ModelSpec
+
+#: A root within this distance of the unit circle is "at the edge" of its region: a fixed
+#: property of the diagnosis (the kind of a finding never depends on tolerances; the
+#: tolerance ``root_margin`` sets only its severity).
+EDGE = 0.02
 
 
 def _boundary_findings(
@@ -27,18 +35,57 @@ def _boundary_findings(
     layout = layout_of(spec)
     all_roots = layout.roots(params)
     smallest_moduli = layout.min_root_modulus(params)
+    model_severity = "fail" if tol.fail_on_model_findings else "warn"
     for factor in layout.factors:
         roots = all_roots[factor.key]
         if roots.size == 0:
             continue
         smallest = smallest_moduli[factor.key]
         word, region = factor.description, factor.region
-        if smallest < 1.0 or (not outside_only and smallest < 1.0 + tol.root_margin):
+        # An MA root near 1 cancels a difference of the same kind (regular or seasonal).
+        differenced = 0 if factor.kind != "ma" else spec.D if factor.seasonal else spec.d
+        near_one = roots[(np.abs(roots - 1.0) < 2 * EDGE + 0.03)]
+        # Over-differencing is a property of the model and the data: said once, of the
+        # reference optimum, not again for every estimate near it; it replaces the
+        # edge-of-region finding of the same factor (one finding per cause).
+        if differenced and near_one.size and not outside_only:
+            kind_of = "seasonal" if factor.seasonal else "regular"
+            instead = (
+                "one seasonal difference fewer (D - 1) with a seasonal AR term, or fixed "
+                "seasonal effects as regressors"
+                if factor.seasonal
+                else "one regular difference fewer (d - 1), with a mean if the series has a "
+                "level, or a trend regressor"
+            )
+            findings.append(
+                Finding(
+                    kind="possible-overdifferencing",
+                    severity=model_severity,
+                    estimator=key,
+                    quantity=factor.key,
+                    message=(
+                        f"At the exact-likelihood optimum the {word} polynomial has a root at "
+                        f"{near_one[0].real:.4f} (modulus {smallest:.4f}), on the edge of the "
+                        f"{region} region, after {kind_of} differencing: the MA term cancels "
+                        "the difference, a sign that the specified model differences the "
+                        "series once too often (common practice, no source). This is a "
+                        "finding about the model, not about any implementation; estimates "
+                        "and standard errors at the edge are unreliable and implementations "
+                        f"that keep parameters inside the region differ here. Try {instead}, "
+                        "and compare the candidates on a holdout (information criteria do "
+                        "not compare models with different differencing)."
+                    ),
+                    values={"root": float(near_one[0].real), "min_root_modulus": smallest},
+                )
+            )
+            continue
+        if smallest < 1.0 or (not outside_only and smallest < 1.0 + EDGE):
             where = "outside" if smallest < 1.0 else "at the edge of"
+            severity = "warn" if smallest < 1.0 + tol.root_margin else "info"
             findings.append(
                 Finding(
                     kind="near-boundary",
-                    severity="warn",
+                    severity=severity,
                     estimator=key,
                     quantity=factor.key,
                     message=(
@@ -48,28 +95,6 @@ def _boundary_findings(
                         "parameters inside the region differ here."
                     ),
                     values={"min_root_modulus": smallest, "margin": tol.root_margin},
-                )
-            )
-        # An MA root near 1 cancels a difference of the same kind (regular or seasonal).
-        differenced = 0 if factor.kind != "ma" else spec.D if factor.seasonal else spec.d
-        near_one = roots[(np.abs(roots - 1.0) < 2 * tol.root_margin + 0.03)]
-        # Over-differencing is a property of the model and the data: said once, of the
-        # reference optimum, not again for every estimate near it.
-        if differenced and near_one.size and not outside_only:
-            findings.append(
-                Finding(
-                    kind="possible-overdifferencing",
-                    severity="warn",
-                    estimator=key,
-                    quantity=factor.key,
-                    message=(
-                        f"The {word} polynomial of {key} has a root at {near_one[0].real:.4f}, "
-                        f"near 1, after {'seasonal' if factor.seasonal else 'regular'} "
-                        "differencing: the MA term nearly cancels a difference, which suggests "
-                        "the series was differenced once too often (common practice, no "
-                        "source)."
-                    ),
-                    values={"root": float(near_one[0].real)},
                 )
             )
     return findings
@@ -275,6 +300,122 @@ def _describe_differences(differences: Mapping[str, Mapping[str, float]]) -> str
     return "; ".join(parts)
 
 
+#: The kinds that name why an estimate disagrees with the reference optimum.
+CAUSE_KINDS = frozenset(
+    {"stopped-short", "objective-differs", "short-of-optimum", "flat-likelihood"}
+)
+
+#: Below this distance from the optimum, in reference standard errors, a coefficient's
+#: difference says nothing about the curvature (a fixed property of the diagnosis).
+FLAT_MIN_DISTANCE = 0.1
+
+#: Numerical resolution of a log-likelihood evaluation, in log-likelihood units: gaps below
+#: it are rounding, not disagreement. A property of the arithmetic, not a tolerance.
+RESOLUTION = 1e-6
+
+
+@dataclass(frozen=True)
+class OwnObjective:
+    """An estimator's own log-likelihood at its estimate and at the reference optimum."""
+
+    at_estimate: float
+    at_reference: float
+
+    @property
+    def known(self) -> bool:
+        return math.isfinite(self.at_estimate) and math.isfinite(self.at_reference)
+
+
+def _resolution(*values: float) -> float:
+    return RESOLUTION * max([1.0, *(abs(v) for v in values if math.isfinite(v))])
+
+
+def _in_standard_errors(
+    spec: ModelSpec, e: Estimate, best: Mapping[str, float], standard_errors: Mapping[str, float]
+) -> dict[str, float]:
+    out = {}
+    for name in coefficient_names(spec):
+        se = standard_errors.get(name, math.nan)
+        if se and math.isfinite(se):
+            out[name] = (e.params[name] - best[name]) / se
+    return out
+
+
+def classify(
+    spec: ModelSpec,
+    e: Estimate,
+    rescore: Rescore,
+    reference: Estimate,
+    standard_errors: Mapping[str, float],
+    own: OwnObjective | None,
+) -> str | None:
+    """The cause of an estimate's disagreement with the reference optimum, or None.
+
+    Decided from the likelihoods and their curvature only, never from a tolerance:
+
+    * flat likelihood: the estimate is at least a tenth of a reference standard error away
+      in some coefficient, yet its gap is under a quarter of what the curvature at the
+      optimum predicts (half the sum of squared distances in standard errors);
+    * otherwise, a gap above the numerical resolution is ``stopped-short`` when the
+      estimator's own likelihood is higher at the reference optimum than at its estimate,
+      ``objective-differs`` when it is not, and ``short-of-optimum`` when its own
+      likelihood cannot be evaluated;
+    * no gap and no distance: agreement (None).
+    """
+    distance = _in_standard_errors(spec, e, reference.params, standard_errors)
+    largest = max((abs(v) for v in distance.values()), default=0.0)
+    predicted = 0.5 * sum(v * v for v in distance.values())
+    gap = max(rescore.gap, 0.0)
+    if largest >= FLAT_MIN_DISTANCE and gap < 0.25 * predicted:
+        return "flat-likelihood"
+    if gap <= _resolution(rescore.profiled_loglike):
+        return None
+    if own is None or not own.known:
+        return "short-of-optimum"
+    if own.at_reference > own.at_estimate + _resolution(own.at_estimate):
+        return "stopped-short"
+    return "objective-differs"
+
+
+def _objective_words(e: Estimate) -> tuple[str, str]:
+    """How an estimator's objective differs (from its declared definition), and the remedy."""
+    definition = e.loglike_definition.lower()
+    if "diffuse" in definition and "exact diffuse" not in definition:
+        return (
+            "its likelihood puts an approximate diffuse prior on the non-stationary states, "
+            "which is informative when the series' level is large",
+            "rescale the series (divide it by a power of ten) or fit it on a log or Box-Cox "
+            "scale; the library's exact diffuse initialisation or simple differencing also "
+            "removes the prior",
+        )
+    if "css" in definition or "conditional" in definition:
+        return (
+            "it maximises a conditional (sum-of-squares) objective, not the exact likelihood",
+            "use the library's exact maximum-likelihood method",
+        )
+    if "burn" in definition or "not counted" in definition:
+        return (
+            "its likelihood leaves out start-up observations (a burn-in)",
+            "use the library's option that counts every observation after differencing",
+        )
+    return (
+        f"its own objective is defined as: {e.loglike_definition or 'not stated'}",
+        "check the library's likelihood options against the exact likelihood",
+    )
+
+
+def _severity(
+    key: str, beyond: bool, material: bool, production: str | None, tol: Tolerances
+) -> str:
+    """Severity under the policy: a disagreement fails only when it is beyond tolerance and
+    material, and it is the production estimator's (or the policy fails other engines)."""
+    if not beyond:
+        return "info"
+    if material and (key == production or production is None or tol.fail_on_other_engines):
+        return "fail"
+    return "warn"
+
+
 def diagnose(
     spec: ModelSpec,
     estimates: Mapping[str, Estimate],
@@ -282,8 +423,13 @@ def diagnose(
     reference: Estimate | None,
     standard_errors: Mapping[str, float],
     tol: Tolerances,
+    *,
+    production: str | None = None,
+    own: Mapping[str, OwnObjective] | None = None,
+    materiality: Mapping[str, Materiality] | None = None,
+    remedies: Mapping[str, str] | None = None,
 ) -> list[Finding]:
-    """One finding per disagreement, event or caveat, most severe first.
+    """One finding per cause, most severe first.
 
     Parameters
     ----------
@@ -297,9 +443,23 @@ def diagnose(
     standard_errors : mapping
         Reference standard errors by canonical name.
     tol : Tolerances
+        Tolerances and policy: they set severities only, never the kind of a finding.
+    production : str, optional
+        The estimator the team ships. Its disagreements fail the audit when they are beyond
+        tolerance and material; other engines' are notes unless the policy says otherwise.
+        None: every estimator is judged as if it were the production one.
+    own : mapping, optional
+        Estimator key -> its own log-likelihood at its estimate and at the reference optimum.
+    materiality : mapping, optional
+        Estimator key -> its disagreement in decision units.
+    remedies : mapping, optional
+        Estimator key -> the outcome of re-running it with the remedy for its objective.
     """
+    own = own or {}
+    materiality = materiality or {}
+    remedies = remedies or {}
     findings: list[Finding] = []
-    agreeing_engines: set[str] = set()
+    causes: dict[str, str | None] = {}
     for key, e in estimates.items():
         findings += _status_findings(e)
         if not e.ok:
@@ -312,42 +472,36 @@ def diagnose(
         findings += _boundary_findings(spec, key, e.params, tol, outside_only=True)
         if reference is None:
             continue
+        cause = classify(spec, e, rescore, reference, standard_errors, own.get(key))
+        causes[key] = cause
         differences = _parameter_differences(spec, e, reference.params, standard_errors, tol)
-        described = _describe_differences(differences)
-        if rescore.gap > tol.loglike_atol:
-            optimiser = ", ".join(f"{k} {v}" for k, v in e.optimizer.items() if v is not None)
-            findings.append(
-                Finding(
-                    "stopped-short",
-                    "fail",
-                    key,
-                    "loglike",
-                    f"{key}'s estimate is {rescore.gap:.4f} log-likelihood units below the "
-                    f"reference optimum (tolerance {tol.loglike_atol:g}): its optimiser stopped "
-                    f"before the optimum ({optimiser or 'no optimiser report'})."
-                    + (f" Parameters: {described}." if described else ""),
-                    {"gap": rescore.gap, "differences": differences},
-                )
-            )
-        elif differences:
-            findings.append(
-                Finding(
-                    "flat-likelihood",
-                    "warn",
-                    key,
-                    ",".join(differences),
-                    f"{key}'s parameters differ from the reference optimum beyond tolerance "
-                    f"({described}) while its reference log-likelihood is within "
-                    f"{tol.loglike_atol:g} of the best: the likelihood is flat in this "
-                    "direction, so the data do not decide between these values.",
-                    {"gap": rescore.gap, "differences": differences},
-                )
-            )
-        elif not e.fitted_model:  # a different model is not agreement, whatever its values
-            agreeing_engines.add(e.engine)
+        beyond = rescore.gap > tol.loglike_atol or bool(differences)
+        found = materiality.get(key)
+        material = found.material if found is not None else beyond
+        if cause is None and not beyond:
+            continue
+        cause = cause or "flat-likelihood"
+        severity = _severity(key, beyond, material, production, tol)
+        if cause == "flat-likelihood" and severity == "fail":
+            severity = "warn"  # as good as the optimum under the likelihood: a note
+        finding = _cause_finding(
+            key,
+            e,
+            cause,
+            rescore,
+            differences,
+            own.get(key),
+            found,
+            remedies.get(key),
+            severity,
+            tol,
+        )
+        findings.append(finding)
     if reference is not None:
         findings += _reference_findings(spec, reference, rescores, standard_errors, tol)
-        findings.append(_engine_count(estimates, agreeing_engines, tol))
+        findings += _production_findings(
+            estimates, rescores, reference, standard_errors, tol, production, causes, materiality
+        )
     if spec.mean and spec.n_differences >= 2:
         findings.append(
             Finding(
@@ -360,8 +514,64 @@ def diagnose(
                 "which forecasts grow without bound. Make sure this is intended.",
             )
         )
+    findings = merge_wrapper_findings(findings, estimates)
     order = {"fail": 0, "warn": 1, "info": 2}
     return sorted(findings, key=lambda f: order[f.severity])
+
+
+def _cause_finding(
+    key: str,
+    e: Estimate,
+    cause: str,
+    rescore: Rescore,
+    differences: Mapping[str, Mapping[str, float]],
+    own: OwnObjective | None,
+    found: Materiality | None,
+    remedy: str | None,
+    severity: str,
+    tol: Tolerances,
+) -> Finding:
+    described = _describe_differences(differences)
+    gap = f"{rescore.gap:.4g} log-likelihood units below the reference optimum"
+    within = f" (tolerance {tol.loglike_atol:g})" if rescore.gap > tol.loglike_atol else ""
+    if cause == "stopped-short":
+        optimiser = ", ".join(f"{k} {v}" for k, v in e.optimizer.items() if v is not None)
+        message = (
+            f"{key}'s estimate is {gap}{within}, and under its own likelihood the reference "
+            f"optimum is {own.at_reference - own.at_estimate:.4g} units better than its "
+            "estimate: its optimiser stopped short of its own optimum "
+            f"({optimiser or 'no optimiser report'})."
+        )
+    elif cause == "objective-differs":
+        how, fix = _objective_words(e)
+        message = (
+            f"{key}'s estimate is {gap}{within}, but under its own likelihood its estimate is "
+            f"{own.at_estimate - own.at_reference:.4g} units better than the reference "
+            f"optimum: its optimiser reached its own optimum, and its objective differs from "
+            f"the exact likelihood: {how}. Remedy: {fix}." + (f" {remedy}" if remedy else "")
+        )
+    elif cause == "short-of-optimum":
+        message = (
+            f"{key}'s estimate is {gap}{within}. It cannot evaluate its own likelihood at "
+            "given parameters, so whether its optimiser stopped short or its objective "
+            "differs cannot be told."
+        )
+    else:
+        message = (
+            f"{key}'s estimate is {gap}, yet lies far from the optimum in reference standard "
+            "errors: the likelihood is flat in this direction, so the data do not decide "
+            "between these values."
+        )
+    if described:
+        message += f" Parameters: {described}."
+    if found is not None:
+        message += f" Materiality: {found.describe()}."
+    values: dict[str, Any] = {"gap": rescore.gap, "differences": dict(differences)}
+    if own is not None:
+        values["own_loglike"] = {"estimate": own.at_estimate, "reference": own.at_reference}
+    if found is not None:
+        values["materiality"] = found.to_dict()
+    return Finding(cause, severity, key, "loglike", message, values)
 
 
 def _reference_findings(
@@ -416,27 +626,209 @@ def _reference_findings(
     return findings
 
 
-def _engine_count(
-    estimates: Mapping[str, Estimate], agreeing: set[str], tol: Tolerances
-) -> Finding:
-    engines_fitted = sorted({e.engine for e in estimates.values() if e.ok})
-    wrappers = {
-        engine: sorted(k for k, e in estimates.items() if e.ok and e.engine == engine)
-        for engine in engines_fitted
-    }
-    listing = "; ".join(f"{engine}: {', '.join(keys)}" for engine, keys in wrappers.items())
-    enough = len(agreeing) >= tol.min_independent_engines
-    return Finding(
-        "engine-count",
-        "info" if enough else "fail",
-        None,
-        None,
-        f"{len(agreeing)} of {len(engines_fitted)} independent engine(s) agree with the "
-        f"reference optimum (wrappers of one engine count once; required: "
-        f"{tol.min_independent_engines}). Engines and their wrappers: {listing or 'none'}.",
-        {
-            "agreeing": sorted(agreeing),
-            "fitted": engines_fitted,
-            "required": tol.min_independent_engines,
-        },
+def _agrees(
+    spec: ModelSpec,
+    e: Estimate,
+    other: Mapping[str, float],
+    gap_difference: float,
+    standard_errors: Mapping[str, float],
+    tol: Tolerances,
+) -> bool:
+    fake = Estimate(
+        key=e.key,
+        engine=e.engine,
+        package=e.package,
+        version=e.version,
+        status="ok",
+        params=dict(e.params),
     )
+    return abs(gap_difference) <= tol.loglike_atol and not _parameter_differences(
+        spec, fake, other, standard_errors, tol
+    )
+
+
+def _production_findings(
+    estimates: Mapping[str, Estimate],
+    rescores: Mapping[str, Rescore],
+    reference: Estimate,
+    standard_errors: Mapping[str, float],
+    tol: Tolerances,
+    production: str | None,
+    causes: Mapping[str, str | None],
+    materiality: Mapping[str, Materiality],
+) -> list[Finding]:
+    """The three questions of the verdict: is the production estimate at the optimum, is it
+    corroborated by enough independent engines, and does any disagreement matter."""
+    spec = reference.spec
+    assert spec is not None
+    findings: list[Finding] = []
+    shipped = estimates.get(production) if production else None
+    if production is not None and (shipped is None or not shipped.ok):
+        why = shipped.reason if shipped is not None else "it was not run"
+        findings.append(
+            Finding(
+                "production-estimate",
+                "fail",
+                production,
+                None,
+                f"The production estimator {production} produced no estimate ({why}), so the "
+                "model it ships cannot be signed off on this audit.",
+            )
+        )
+        return findings
+    # The point the other engines are compared with: the production estimate, or the
+    # reference optimum when no production estimator is declared.
+    # A production estimate whose difference from the optimum is not material stands with
+    # the optimum: engines at the optimum corroborate it in decision units.
+    immaterial = False
+    if shipped is not None:
+        target, target_gap = shipped.params, rescores[production].gap
+        cause = causes.get(production)
+        found = materiality.get(production)
+        beyond = target_gap > tol.loglike_atol or bool(
+            _parameter_differences(spec, shipped, reference.params, standard_errors, tol)
+        )
+        if not beyond:
+            message = (
+                f"The production estimate ({production}) is at the reference optimum within "
+                f"tolerance (gap {target_gap:.2g} log-likelihood units)."
+            )
+            severity = "info"
+        else:
+            material = found.material if found is not None else True
+            immaterial = not material
+            severity = "fail" if material else "warn"
+            message = (
+                f"The production estimate ({production}) is not at the reference optimum "
+                f"(gap {target_gap:.4g} log-likelihood units; cause: {cause or 'parameters'})"
+                + (f"; {found.describe()}" if found is not None else "")
+                + (
+                    ". It fails the audit because the difference is material."
+                    if material
+                    else ". The difference is not material, so it is a note."
+                )
+            )
+        findings.append(
+            Finding(
+                "production-estimate",
+                severity,
+                production,
+                "loglike",
+                message,
+                {"gap": target_gap, "cause": cause, "beyond_tolerance": beyond},
+            )
+        )
+    else:
+        target, target_gap = reference.params, 0.0
+    agreeing: dict[str, list[str]] = {}
+    reasons: dict[str, str] = {}
+    for key, e in estimates.items():
+        if key == production:
+            continue
+        if not e.ok:
+            reasons.setdefault(e.engine, f"{key}: {e.status} ({e.reason[:120]})")
+            continue
+        if e.fitted_model:
+            reasons.setdefault(e.engine, f"{key}: fitted a different model")
+            continue
+        diff = rescores[key].gap - target_gap
+        at_optimum = _agrees(spec, e, reference.params, rescores[key].gap, standard_errors, tol)
+        if _agrees(spec, e, target, diff, standard_errors, tol) or (immaterial and at_optimum):
+            agreeing.setdefault(e.engine, []).append(key)
+        else:
+            cause = causes.get(key) or "parameters differ"
+            reasons.setdefault(
+                e.engine, f"{key}: {cause} ({rescores[key].gap:.3g} units below the optimum)"
+            )
+    engines = set(agreeing)
+    if shipped is not None:
+        engines.add(shipped.engine)
+        if immaterial or _agrees(spec, shipped, reference.params, target_gap, standard_errors, tol):
+            engines.add(REFERENCE_ENGINE)
+        else:
+            reasons[REFERENCE_ENGINE] = "reference: the production estimate is not at its optimum"
+    else:
+        engines.add(REFERENCE_ENGINE)
+    for engine in engines:
+        reasons.pop(engine, None)
+    enough = len(engines) >= tol.min_independent_engines
+    # When the production estimate itself fails the first question, that is the cause;
+    # the count is then stated, not counted as a second failure.
+    counted_already = any(f.severity == "fail" for f in findings)
+    listing = "; ".join(
+        f"{engine} ({', '.join(keys)})" for engine, keys in sorted(agreeing.items())
+    )
+    not_counted = "; ".join(reasons[k] for k in sorted(reasons))
+    subject = f"the production estimate ({production})" if shipped else "the reference optimum"
+    findings.append(
+        Finding(
+            "engine-count",
+            "info" if enough or counted_already else "fail",
+            None,
+            None,
+            f"{len(engines)} independent engine(s) corroborate {subject}, the reference "
+            f"included (wrappers of one engine count once; required: "
+            f"{tol.min_independent_engines})."
+            + (
+                " The production estimate differs from the optimum by an amount that is not "
+                "material, so engines at the optimum corroborate it in decision units."
+                if immaterial
+                else ""
+            )
+            + (f" Agreeing: {listing}." if listing else "")
+            + (f" Not counted: {not_counted}." if not_counted else ""),
+            {
+                "agreeing": sorted(engines),
+                "not_counted": dict(sorted(reasons.items())),
+                "required": tol.min_independent_engines,
+            },
+        )
+    )
+    return findings
+
+
+def merge_wrapper_findings(
+    findings: list[Finding], estimates: Mapping[str, Estimate]
+) -> list[Finding]:
+    """One finding per cause: the same finding about wrappers of one engine that returned
+    the same estimate is kept once, naming every wrapper."""
+    groups: dict[tuple[Any, ...], list[Finding]] = {}
+    order: list[tuple[Any, ...]] = []
+    for f in findings:
+        e = estimates.get(f.estimator or "")
+        if e is None or not e.ok:
+            identity: tuple[Any, ...] = ("single", id(f))
+        else:
+            params = tuple(sorted((k, round(v, 9)) for k, v in e.params.items()))
+            text = f.message.replace(e.key, "{estimator}")
+            identity = (e.engine, params, f.kind, f.severity, f.quantity, text)
+        if identity not in groups:
+            groups[identity] = []
+            order.append(identity)
+        groups[identity].append(f)
+    merged = []
+    for identity in order:
+        group = groups[identity]
+        if len(group) == 1:
+            merged.append(group[0])
+            continue
+        keys = [f.estimator for f in group if f.estimator]
+        first = group[0]
+        engine = estimates[first.estimator or ""].engine
+        others = keys[1:]
+        names = ", ".join(others[:-1]) + (" and " if len(others) > 1 else "") + others[-1]
+        message = (
+            f"{first.message} The same holds for {names}: wrappers of the same engine "
+            f"({engine}) with the same estimate, so this is one finding."
+        )
+        merged.append(
+            Finding(
+                first.kind,
+                first.severity,
+                first.estimator,
+                first.quantity,
+                message,
+                {**first.values, "members": keys},
+            )
+        )
+    return merged

@@ -36,12 +36,23 @@ KINDS: dict[str, str] = {
         "estimator defines it differently; under the reference definitions it agrees."
     ),
     "stopped-short": (
-        "The estimate is below the best reference log-likelihood by more than the "
-        "tolerance: the optimiser stopped before the optimum."
+        "The estimator's optimiser stopped before the optimum of its own objective: its own "
+        "likelihood is higher at the reference optimum than at its estimate."
+    ),
+    "objective-differs": (
+        "The estimator maximises another objective than the exact likelihood of the "
+        "differenced series (a prior or initialisation, conditioning, burn-in, scale): "
+        "under its own likelihood its estimate is the better point."
+    ),
+    "short-of-optimum": (
+        "The estimate is below the reference optimum; whether its optimiser stopped short "
+        "or its objective differs cannot be told, because the estimator cannot evaluate its "
+        "own likelihood at given parameters."
     ),
     "flat-likelihood": (
-        "Parameters differ beyond tolerance but the reference log-likelihoods are equal: "
-        "the data do not pin down this direction (weak identification)."
+        "The estimate lies well away from the optimum in standard errors, yet its "
+        "likelihood is almost as high: the likelihood is flatter than its curvature at the "
+        "optimum says (a ridge); the data do not pin down this direction."
     ),
     "parameter-disagreement": (
         "Parameters differ from the reference optimum beyond tolerance and no other finding "
@@ -69,7 +80,14 @@ KINDS: dict[str, str] = {
     ),
     "holdout-failure": "The estimator could not be fitted or forecast at a holdout origin.",
     "reference-fit": "A caveat about the reference fit itself (convergence, standard errors).",
-    "engine-count": "How many independent engines agree with the reference optimum.",
+    "engine-count": (
+        "How many independent engines (the reference counts as one) corroborate the "
+        "production estimate, and why each other engine does or does not count."
+    ),
+    "production-estimate": (
+        "Whether the estimate of the production estimator (the one the team ships) is at "
+        "the reference optimum, and whether any shortfall matters for its forecasts."
+    ),
     "search-failed": "An automatic order search could not run or returned no model.",
     "search-disagreement": (
         "Automatic order searches selected different models; the causes are found by "
@@ -129,6 +147,15 @@ class Finding:
             raise ValueError(f"unknown finding kind {self.kind!r}")
         if self.severity not in SEVERITIES:
             raise ValueError(f"unknown severity {self.severity!r}")
+
+    @property
+    def estimators(self) -> list[str]:
+        """Every estimator the finding is about: the wrappers of one engine that share it
+        (``values["members"]``), or the one estimator, or none."""
+        members = self.values.get("members")
+        if members:
+            return list(members)
+        return [self.estimator] if self.estimator else []
 
     def to_dict(self) -> dict[str, Any]:
         """JSON-ready form (non-finite numbers become None)."""

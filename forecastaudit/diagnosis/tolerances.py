@@ -211,3 +211,40 @@ class Tolerances:
             name: {"value": value, "default": getattr(default, name), "reason": REASONS[name]}
             for name, value in self.to_dict().items()
         }
+
+
+def parse_overrides(items: list[str] | tuple[str, ...] | None, *, where: str) -> dict[str, Any]:
+    """Tolerance overrides from ``NAME=VALUE`` texts (the CLI and the pytest plugin).
+
+    Numbers for numeric tolerances, a whole number for ``min_independent_engines``,
+    ``true``/``false`` for the policy switches. Raises :class:`ToleranceError` naming the
+    problem and ``where`` it came from.
+    """
+    known = {item.name: item for item in dataclasses.fields(Tolerances)}
+    out: dict[str, Any] = {}
+    for item in items or []:
+        name, sep, value = (part.strip() for part in str(item).partition("="))
+        if not sep or not name:
+            raise ToleranceError(
+                f"{where} expects NAME=VALUE (e.g. loglike_atol=0.05), got {item!r}."
+            )
+        if name not in known:
+            raise ToleranceError(
+                f"{where}: unknown tolerance {name!r}; known: {', '.join(sorted(known))}."
+            )
+        if name.startswith("fail_on_"):
+            if value.lower() not in ("true", "false"):
+                raise ToleranceError(f"{where} {name}: use true or false, got {value!r}.")
+            out[name] = value.lower() == "true"
+            continue
+        try:
+            number = float(value)
+        except ValueError:
+            raise ToleranceError(f"{where} {name}: {value!r} is not a number.") from None
+        if name == "min_independent_engines":
+            if not number.is_integer():
+                raise ToleranceError(f"{where} {name}: {value!r} is not a whole number of engines.")
+            out[name] = int(number)
+        else:
+            out[name] = number
+    return out

@@ -114,6 +114,8 @@ def build_record(
             "schema_version": SCHEMA_VERSION,
             "created": report.created if created is None else created,
             "verdict": report.verdict,
+            "policy": report.policy,
+            "materiality": report.materiality,
             "spec": report.spec.to_dict(),
             "tolerances": report.tolerances.describe(),
             "options": report.options,

@@ -54,6 +54,7 @@ SEVERITY_LABELS: dict[str, dict[str, str]] = {
 }
 VERDICT_LABELS: dict[str, dict[str, str]] = {
     "pass": {"word": "PASS", "symbol": "\u2713"},
+    "pass-with-notes": {"word": "PASS WITH NOTES", "symbol": "\u2713"},
     "fail": {"word": "FAIL", "symbol": "\u2717"},
 }
 
