@@ -478,9 +478,8 @@ def diagnose(
         beyond = rescore.gap > tol.loglike_atol or bool(differences)
         found = materiality.get(key)
         material = found.material if found is not None else beyond
-        if cause is None and not beyond:
-            continue
-        cause = cause or "flat-likelihood"
+        if cause is None:
+            continue  # agreement to the numerical resolution: no cause, whatever the tolerance
         severity = _severity(key, beyond, material, production, tol)
         if cause == "flat-likelihood" and severity == "fail":
             severity = "warn"  # as good as the optimum under the likelihood: a note
