@@ -13,6 +13,7 @@ from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
 
@@ -117,6 +118,30 @@ def _stand_in(task: FitTask, outcome: Outcome) -> FitOutcome:
     return FitOutcome(estimate=estimate)
 
 
+def _map_units(
+    backend: Backend | int | None,
+    func: Any,
+    items: list[Any],
+    labels: list[str],
+    time_limit: float | None,
+    progress: str | bool | None = None,
+) -> list[Outcome]:
+    """Map a unit over items on a backend (one made here, and closed, when given a number)."""
+    owned = not isinstance(backend, Backend)
+    runner = make_backend(backend)
+    try:
+        return runner.map(
+            func,
+            items,
+            labels=labels,
+            time_limit=time_limit if runner.enforces_time_limit else None,
+            progress=progress,
+        )
+    finally:
+        if owned:
+            runner.close()
+
+
 def run_fits(
     tasks: Sequence[FitTask],
     backend: Backend | int | None = None,
@@ -137,19 +162,9 @@ def run_fits(
     progress : str or bool, optional
         A progress-bar description (or True), or None for none.
     """
-    owned = not isinstance(backend, Backend)
-    runner = make_backend(backend)
-    try:
-        outcomes = runner.map(
-            fit_unit,
-            list(tasks),
-            labels=[t.label or t.key for t in tasks],
-            time_limit=time_limit if runner.enforces_time_limit else None,
-            progress=progress,
-        )
-    finally:
-        if owned:
-            runner.close()
+    outcomes = _map_units(
+        backend, fit_unit, list(tasks), [t.label or t.key for t in tasks], time_limit, progress
+    )
     return [
         o.value if o.ok and isinstance(o.value, FitOutcome) else _stand_in(t, o)
         for t, o in zip(tasks, outcomes, strict=True)
@@ -205,19 +220,9 @@ def run_searches(
     progress: str | bool | None = None,
 ) -> list[SearchOutcome]:
     """Run order searches on the execution seam; one outcome per task, in order."""
-    owned = not isinstance(backend, Backend)
-    runner = make_backend(backend)
-    try:
-        outcomes = runner.map(
-            search_unit,
-            list(tasks),
-            labels=[t.key for t in tasks],
-            time_limit=time_limit if runner.enforces_time_limit else None,
-            progress=progress,
-        )
-    finally:
-        if owned:
-            runner.close()
+    outcomes = _map_units(
+        backend, search_unit, list(tasks), [t.key for t in tasks], time_limit, progress
+    )
     results = []
     for task, outcome in zip(tasks, outcomes, strict=True):
         if outcome.ok and isinstance(outcome.value, SearchOutcome):
@@ -266,18 +271,13 @@ def run_own_loglikes(
     time_limit: float | None = DEFAULT_TIME_LIMIT,
 ) -> list[tuple[float, ...]]:
     """Own log-likelihoods on the execution seam; NaN where a unit gave no value."""
-    owned = not isinstance(backend, Backend)
-    runner = make_backend(backend)
-    try:
-        outcomes = runner.map(
-            own_loglike_unit,
-            list(tasks),
-            labels=[f"{t.key} own likelihood" for t in tasks],
-            time_limit=time_limit if runner.enforces_time_limit else None,
-        )
-    finally:
-        if owned:
-            runner.close()
+    outcomes = _map_units(
+        backend,
+        own_loglike_unit,
+        list(tasks),
+        [f"{t.key} own likelihood" for t in tasks],
+        time_limit,
+    )
     return [
         tuple(o.value) if o.ok else tuple(float("nan") for _ in t.points)
         for t, o in zip(tasks, outcomes, strict=True)

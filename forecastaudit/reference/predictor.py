@@ -1,26 +1,8 @@
-"""The reference likelihood: forecastaudit's own exact Gaussian likelihood and fit.
+"""The reference model's best linear predictor: forecasts and innovations at given parameters.
 
-Every estimate, whichever library produced it, is re-scored here on one definition: the
-exact Gaussian log-likelihood of the differenced series ``w = (1-B)^d (1-B^m)^D y`` under the
-canonical model (see :mod:`forecastaudit.conventions`)::
-
-    phi(B) Phi(B^m) (w_t - mu) = theta(B) Theta(B^m) e_t,     e_t ~ N(0, sigma2),
-
-with the ``2 pi`` constant included and ``n_w = n - d - mD`` observations. The code is
-written from the definition and the published algorithms cited in each function; no
-estimator's filter is called. One published method per function:
-
-* :func:`arma_autocovariances` -- Brockwell & Davis, the "third method".
-* :func:`gaussian_loglike` -- dense Cholesky of the Toeplitz covariance, or the banded
-  covariance after Ansley's (1979) AR transformation, both exact.
-* :func:`log_jacobian` -- the change of variables from the transformed to the original scale.
-* :func:`pacf_to_ar` / :func:`ar_to_pacf` -- Durbin-Levinson recursion and its inverse, the
-  partial-autocorrelation parameterisation of Barndorff-Nielsen & Schou (1973), Jones
-  (1980) and Monahan (1984).
-* :func:`fit_reference` -- maximum of the profiled likelihood from several starts, one of
-  them our own conditional-least-squares fit; standard errors from a central-difference
-  Hessian.
-* :func:`profile_line` / :func:`profile_grid` -- the likelihood along a line and on a grid.
+The exact conditional Gaussian distribution of future differenced values given the observed
+ones (from the same autocovariances and Cholesky factor as the likelihood), integrated back
+through the differencing; the innovations come from the same factor.
 """
 
 from __future__ import annotations
