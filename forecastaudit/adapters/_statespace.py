@@ -216,24 +216,64 @@ def to_fit_output(
     )
 
 
-def native_vector(param_names: list[str], spec: ModelSpec, params: dict[str, float]) -> np.ndarray:
-    """Canonical parameters as a SARIMAX parameter vector (``trend='c'`` for the mean).
+def native_vector(
+    param_names: list[str],
+    spec: ModelSpec,
+    params: dict[str, float],
+    mean_kind: MeanKind = "intercept",
+    constant_name: str | None = None,
+) -> np.ndarray:
+    """Canonical parameters as a statsmodels state-space parameter vector, in its order.
 
-    The inverse of :func:`canonical_coefficients` with ``mean_kind="intercept"``.
+    The inverse of :func:`canonical_coefficients` with the same ``mean_kind`` and
+    ``constant_name``: by default SARIMAX's ``trend='c'`` intercept
+    ``c = mu phi(1) Phi(1)``; ``"mean"`` a regression constant equal to mu (``const``);
+    ``"trend"`` the coefficient b = mu / ((d+D)! m^D) of ``t^(d+D)``, whose native name the
+    adapter that set the model up gives (statsmodels calls it ``x1``).
+
+    Raises
+    ------
+    KeyError
+        For a native parameter with no canonical counterpart (a term the spec did not ask
+        for): no value is made up for it.
     """
+    constant_name = constant_name or {"intercept": "intercept", "mean": "const"}.get(mean_kind)
     values = []
     for name in param_names:
         match = _LAG_NAME.match(name)
         if match:
             kind, seasonal, lag = match.groups()
             values.append(params[f"{'s' if seasonal else ''}{kind}_lag{lag}"])
-        elif name == "intercept":
-            values.append(mean_to_intercept(params["mu"], spec, params))
         elif name == "sigma2":
             values.append(params["sigma2"])
+        elif spec.mean and name == constant_name:
+            if mean_kind == "intercept":
+                values.append(mean_to_intercept(params["mu"], spec, params))
+            elif mean_kind == "trend":
+                values.append(params["mu"] / trend_scale(spec))
+            else:
+                values.append(params["mu"])
         else:
-            raise KeyError(f"no canonical value for SARIMAX parameter {name!r}")
+            raise KeyError(f"no canonical value for statsmodels parameter {name!r}")
     return np.array(values, dtype=float)
+
+
+def model_loglike(
+    model: Any,
+    spec: ModelSpec,
+    params: dict[str, float],
+    mean_kind: MeanKind = "intercept",
+    constant_name: str | None = None,
+) -> float:
+    """A statsmodels state-space model's own log-likelihood at canonical ``params``.
+
+    ``model.loglike`` on the model object as the library built it for its fit: the same
+    initialisation (approximate diffuse prior on the non-stationary states by default),
+    burn-in, 2*pi constant, and sigma2 taken from ``params`` (the model's scale is not
+    concentrated unless the model itself says so).
+    """
+    vector = native_vector(list(model.param_names), spec, params, mean_kind, constant_name)
+    return float(model.loglike(vector))
 
 
 def statespace_forecast(result: Any, steps: int, levels: tuple[float, ...]) -> ForecastOutput:

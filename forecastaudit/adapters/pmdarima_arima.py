@@ -4,9 +4,16 @@ Spec -> call: orders and period from the spec; ``with_intercept`` set from the s
 explicitly, because the library default (True) adds an intercept c for any differencing,
 which with d + D = 2 is a quadratic trend in levels. pmdarima passes the intercept to SARIMAX
 as ``trend='c'``, converted to mu = c / (phi(1)Phi(1)). Its ``aicc()`` counts n = len(y).
+
+Own likelihood at given parameters: pmdarima's fit builds one statsmodels SARIMAX from its
+own settings (:func:`pmdarima_sarimax` rebuilds that same model, with the same trend and
+every SARIMAX option pmdarima passes) and reports that model's llf; ``model.loglike(vector)``
+on it is the same objective, at the canonical values mapped by its ``param_names``.
 """
 
 from __future__ import annotations
+
+from typing import Any
 
 import numpy as np
 
@@ -19,6 +26,43 @@ from forecastaudit.adapters.protocol import (
     ForecastOutput,
 )
 from forecastaudit.adapters.registry import register_estimator
+from forecastaudit.spec import ModelSpec
+
+
+def pmdarima_sarimax(estimator: Any, y: np.ndarray) -> Any:
+    """The statsmodels SARIMAX model a pmdarima ``ARIMA`` estimator's ``fit(y)`` builds.
+
+    Mirrors pmdarima 2.x ``ARIMA.fit`` / ``_fit``: ``y`` as float64, ``trend`` the
+    estimator's own, else ``'c'`` when ``with_intercept`` is true (else None, no trend), the
+    seasonal order through pmdarima's own check, and the estimator's ``sarimax_kwargs``
+    (whatever its constructor was given beyond its own options) passed on unchanged. Used by
+    every adapter whose fit ends in a pmdarima ``ARIMA`` (pmdarima's, and sktime's wrapper).
+
+    Raises
+    ------
+    NotImplementedError
+        With ``out_of_sample_size`` > 0, where pmdarima fits a shortened series and then
+        updates the result: that is not one model's likelihood.
+    """
+    from pmdarima.compat.statsmodels import check_seasonal_order
+    from statsmodels.tsa.statespace.sarimax import SARIMAX
+
+    if getattr(estimator, "out_of_sample_size", 0):
+        raise NotImplementedError(
+            "with out_of_sample_size > 0 pmdarima fits a shortened series and updates it; "
+            "its likelihood is not rebuilt"
+        )
+    trend = estimator.trend
+    if trend is None and estimator.with_intercept:
+        trend = "c"
+    return SARIMAX(
+        endog=np.asarray(y, dtype=np.float64),
+        exog=None,
+        order=estimator.order,
+        seasonal_order=check_seasonal_order(estimator.seasonal_order),
+        trend=trend,
+        **dict(estimator.sarimax_kwargs or {}),
+    )
 
 
 @register_estimator
@@ -32,18 +76,23 @@ class PmdarimaArima(EstimatorAdapter):
     description = "pmdarima ARIMA"
     capabilities = Capabilities(
         mean_differences=frozenset(range(0, 6)),
+        own_loglike=True,
     )
 
-    def _fit(self, request: FitRequest) -> FitOutput:
+    @staticmethod
+    def _estimator(spec: ModelSpec) -> Any:
         from pmdarima.arima import ARIMA
 
-        y, spec = request.y, request.spec
-
-        model = ARIMA(
+        return ARIMA(
             order=spec.order,
             seasonal_order=(*spec.seasonal, spec.period or 0),
             with_intercept=spec.mean,
         )
+
+    def _fit(self, request: FitRequest) -> FitOutput:
+        y, spec = request.y, request.spec
+
+        model = self._estimator(spec)
         model.fit(y)
         n = len(y)
         return _statespace.to_fit_output(
@@ -59,6 +108,11 @@ class PmdarimaArima(EstimatorAdapter):
             overridden_defaults={} if spec.mean else {"with_intercept": True},
             native=model,
         )
+
+    def _loglike_at(self, request: FitRequest, params: dict[str, float]) -> float:
+        # The SARIMAX model pmdarima's fit would build from the same estimator settings.
+        model = pmdarima_sarimax(self._estimator(request.spec), request.y)
+        return _statespace.model_loglike(model, request.spec, params, "intercept")
 
     def _forecast(self, native, steps: int, levels: tuple[float, ...]) -> ForecastOutput:  # type: ignore[no-untyped-def]
         lower, upper = {}, {}

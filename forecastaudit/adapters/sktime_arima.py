@@ -4,6 +4,13 @@ statsmodels SARIMAX).
 Spec -> call: orders and period from the spec; ``with_intercept`` set from the spec's mean,
 explicitly, because the library default (True) adds an intercept c for any differencing.
 sktime needs a pandas Series; a positional index is used, the values are those given.
+
+Own likelihood at given parameters: sktime's fit hands its own pmdarima ``ARIMA`` (built by
+the forecaster from its settings, including the SARIMAX options sktime passes explicitly:
+``enforce_stationarity``, ``simple_differencing``, ``measurement_error``, ...) the series;
+the same pmdarima estimator is built from a forecaster with the same settings, and the
+SARIMAX model it fits is rebuilt (:func:`~forecastaudit.adapters.pmdarima_arima.pmdarima_sarimax`)
+and evaluated with ``model.loglike(vector)``.
 """
 
 from __future__ import annotations
@@ -11,6 +18,7 @@ from __future__ import annotations
 import numpy as np
 
 from forecastaudit.adapters import _statespace
+from forecastaudit.adapters.pmdarima_arima import pmdarima_sarimax
 from forecastaudit.adapters.protocol import (
     Capabilities,
     EstimatorAdapter,
@@ -19,6 +27,7 @@ from forecastaudit.adapters.protocol import (
     ForecastOutput,
 )
 from forecastaudit.adapters.registry import register_estimator
+from forecastaudit.spec import ModelSpec
 
 
 @register_estimator
@@ -32,19 +41,25 @@ class SktimeArima(EstimatorAdapter):
     description = "sktime ARIMA forecaster"
     capabilities = Capabilities(
         mean_differences=frozenset(range(0, 6)),
+        own_loglike=True,
     )
 
-    def _fit(self, request: FitRequest) -> FitOutput:
-        import pandas as pd
+    @staticmethod
+    def _forecaster(spec: ModelSpec):  # type: ignore[no-untyped-def]
         from sktime.forecasting.arima import ARIMA
 
-        y, spec = request.y, request.spec
-
-        forecaster = ARIMA(
+        return ARIMA(
             order=spec.order,
             seasonal_order=(*spec.seasonal, spec.period or 0),
             with_intercept=spec.mean,
         )
+
+    def _fit(self, request: FitRequest) -> FitOutput:
+        import pandas as pd
+
+        y, spec = request.y, request.spec
+
+        forecaster = self._forecaster(spec)
         forecaster.fit(pd.Series(y))
         fitted = forecaster.get_fitted_params()
         criteria = {name: float(fitted[name]) for name in ("aic", "aicc", "bic") if name in fitted}
@@ -59,6 +74,13 @@ class SktimeArima(EstimatorAdapter):
             overridden_defaults={} if spec.mean else {"with_intercept": True},
             native=forecaster,
         )
+
+    def _loglike_at(self, request: FitRequest, params: dict[str, float]) -> float:
+        # The pmdarima estimator sktime's fit would create (its private factory, the one
+        # its fit calls), and the SARIMAX model that estimator builds.
+        estimator = self._forecaster(request.spec)._instantiate_model()
+        model = pmdarima_sarimax(estimator, request.y)
+        return _statespace.model_loglike(model, request.spec, params, "intercept")
 
     def _forecast(self, native, steps: int, levels: tuple[float, ...]) -> ForecastOutput:  # type: ignore[no-untyped-def]
         fh = list(range(1, steps + 1))

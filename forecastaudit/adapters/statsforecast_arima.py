@@ -7,12 +7,25 @@ mu = m^D b); a mean with d + D >= 2 is not offered by the library. Both flags ar
 explicitly. The reported sigma2 is SSR / (n_w - number of coefficients) (measured in
 statsforecast 2.1: ``nansum(residuals**2) / (nstar - npar + 1)`` with npar counting
 sigma2), converted here to the maximum-likelihood SSR / n_w.
+
+Own likelihood at given parameters: the same ``models.ARIMA`` with every coefficient fixed
+(``fixed`` = the canonical values as ``ar1..``, ``ma1..``, ``sar1..``, ``sma1..``,
+``intercept`` = mu or ``drift`` = mu / m^D) and ``method="ML"``, which evaluates its ML
+objective once, without optimising: the Kalman filter with the differences in the state
+vector under its diffuse prior (kappa 1e6), on the observations whose prediction variance
+is below 1e4 (n - d - mD here), 2*pi constant included. Its ML objective profiles sigma2 out
+(``0.5 log(SSR/n) + 0.5 sum log f_t / n``): ``loglik`` is the value at the maximum-likelihood
+sigma2 = SSR / n_w for the given coefficients, and the library takes no sigma2. So the
+canonical ``sigma2`` passed is not used: the value is the library's own objective, which is
+what its fit maximised; at its own estimate it is its reported ``loglik`` (measured equal to
+the last digit, statsforecast 2.1.1).
 """
 
 from __future__ import annotations
 
 import inspect
 import re
+from typing import Any
 
 import numpy as np
 
@@ -25,6 +38,8 @@ from forecastaudit.adapters.protocol import (
 )
 from forecastaudit.adapters.registry import register_estimator
 from forecastaudit.conventions import df_adjusted_to_ml_sigma2, trend_scale
+from forecastaudit.layout import layout_of
+from forecastaudit.spec import ModelSpec
 
 _NAME = re.compile(r"^(ar|ma|sar|sma)(\d+)$")
 # scipy.optimize result status codes, as statsforecast stores them in model_["code"].
@@ -34,6 +49,26 @@ _CODES = {
     2: "precision loss: the optimizer could not improve further",
     3: "NaN encountered",
 }
+
+
+def _native_coefficients(spec: ModelSpec, params: dict[str, float]) -> dict[str, float]:
+    """Canonical coefficients under statsforecast's names, in its order (no sigma2).
+
+    ``ar1..``, ``ma1..``, ``sar1..``, ``sma1..`` (same signs as ours), then ``intercept`` = mu
+    with no differencing or ``drift`` = mu / trend_scale with d + D = 1: the inverse of the
+    mapping in :meth:`StatsforecastArima._fit`.
+    """
+    layout = layout_of(spec)
+    native: dict[str, float] = {}
+    for key in ("ar", "ma", "sar", "sma"):  # statsforecast's coefficient order
+        for i, name in enumerate(layout.factor(key).names, start=1):
+            native[f"{key}{i}"] = float(params[name])
+    if spec.mean:
+        if spec.n_differences == 0:
+            native["intercept"] = float(params["mu"])
+        else:
+            native["drift"] = float(params["mu"]) / trend_scale(spec)
+    return native
 
 
 @register_estimator
@@ -47,7 +82,22 @@ class StatsforecastArima(EstimatorAdapter):
     description = "statsforecast ARIMA"
     capabilities = Capabilities(
         mean_differences=frozenset({0, 1}),
+        own_loglike=True,
     )
+
+    @staticmethod
+    def _model(spec: ModelSpec, **options: Any) -> Any:
+        from statsforecast.models import ARIMA
+
+        s = spec.n_differences
+        return ARIMA(
+            order=spec.order,
+            season_length=spec.m,
+            seasonal_order=spec.seasonal,
+            include_mean=spec.mean and s == 0,
+            include_drift=spec.mean and s == 1,
+            **options,
+        )
 
     def _fit(self, request: FitRequest) -> FitOutput:
         from statsforecast.models import ARIMA
@@ -55,13 +105,7 @@ class StatsforecastArima(EstimatorAdapter):
         y, spec = request.y, request.spec
 
         s = spec.n_differences
-        model = ARIMA(
-            order=spec.order,
-            season_length=spec.m,
-            seasonal_order=spec.seasonal,
-            include_mean=spec.mean and s == 0,
-            include_drift=spec.mean and s == 1,
-        )
+        model = self._model(spec)
         model.fit(y)
         fit = model.model_
         coef = {str(k): float(v) for k, v in fit["coef"].items()}
@@ -119,6 +163,21 @@ class StatsforecastArima(EstimatorAdapter):
             overridden_defaults=overridden,
             native=model,
         )
+
+    def _loglike_at(self, request: FitRequest, params: dict[str, float]) -> float:
+        spec = request.spec
+        fixed = _native_coefficients(spec, params)
+        model = self._model(spec, method="ML", fixed=dict(fixed))
+        model.fit(request.y)
+        fit = model.model_
+        # An unknown name in ``fixed`` is silently left free (and then optimised): refuse.
+        free = [name for name, is_free in zip(fit["coef"], fit["mask"], strict=True) if is_free]
+        if free or set(fit["coef"]) != set(fixed):
+            raise RuntimeError(
+                f"statsforecast did not fix every coefficient (free: {free}; asked "
+                f"{sorted(fixed)}, got {sorted(fit['coef'])})"
+            )
+        return float(fit["loglik"])
 
     def _forecast(self, native, steps: int, levels: tuple[float, ...]) -> ForecastOutput:  # type: ignore[no-untyped-def]
         levels_int = [int(level) if float(level).is_integer() else level for level in levels]

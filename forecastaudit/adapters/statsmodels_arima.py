@@ -5,9 +5,16 @@ errors: ``trend='c'`` (a mean equal to mu) without differencing, and with d + D 
 trend on ``t^s`` alone (``trend='t'`` for s = 1), whose coefficient b gives
 mu = s! m^D b. Without a mean the trend is ``'n'``, passed explicitly because the library
 adds a constant by default when d + D = 0.
+
+Own likelihood at given parameters: ``model.loglike(vector)`` on the model built exactly as
+for the fit (the same default approximate diffuse prior and burn-in of d + mD observations),
+with the canonical values mapped by the model's own ``param_names`` (``const`` = mu, or the
+trend coefficient b = mu / (s! m^D)) and sigma2 as given.
 """
 
 from __future__ import annotations
+
+import numpy as np
 
 from forecastaudit.adapters import _statespace
 from forecastaudit.adapters.protocol import (
@@ -42,28 +49,45 @@ class StatsmodelsArima(EstimatorAdapter):
     description = "statsmodels tsa.arima ARIMA"
     capabilities = Capabilities(
         mean_differences=frozenset(range(0, 6)),
+        own_loglike=True,
     )
 
-    def _fit(self, request: FitRequest) -> FitOutput:
+    @staticmethod
+    def _model(y: np.ndarray, spec: ModelSpec):  # type: ignore[no-untyped-def]
         from statsmodels.tsa.arima.model import ARIMA
 
-        y, spec = request.y, request.spec
-        model = ARIMA(
+        return ARIMA(
             y,
             order=spec.order,
             seasonal_order=(*spec.seasonal, spec.period or 0),
             trend=_trend_for(spec),
         )
-        result = model.fit()
-        mean_kind = "mean" if spec.n_differences == 0 else "trend"
+
+    @staticmethod
+    def _mean_of(model, spec: ModelSpec) -> tuple[_statespace.MeanKind, str | None]:  # type: ignore[no-untyped-def]
+        """How the constant enters the model, and its native name."""
+        mean_kind: _statespace.MeanKind = "mean" if spec.n_differences == 0 else "trend"
         # The trend columns come first among the model's regression names ("const", or the
         # trend on t^s, which statsmodels calls "x1" like a first regressor).
         constant = next(iter(model.exog_names or [None])) if spec.mean else None
+        return mean_kind, constant
+
+    def _fit(self, request: FitRequest) -> FitOutput:
+        y, spec = request.y, request.spec
+        model = self._model(y, spec)
+        result = model.fit()
+        mean_kind, constant = self._mean_of(model, spec)
         # The library adds a constant by default when d + D = 0; the spec decides instead.
         overridden = {"trend": "c"} if spec.n_differences == 0 and not spec.mean else {}
         return _statespace.to_fit_output(
             result, spec, mean_kind, constant_name=constant, overridden_defaults=overridden
         )
+
+    def _loglike_at(self, request: FitRequest, params: dict[str, float]) -> float:
+        # The same model object as the fit: its own prior, burn-in and regression constant.
+        model = self._model(request.y, request.spec)
+        mean_kind, constant = self._mean_of(model, request.spec)
+        return _statespace.model_loglike(model, request.spec, params, mean_kind, constant)
 
     def _forecast(self, native, steps: int, levels: tuple[float, ...]) -> ForecastOutput:  # type: ignore[no-untyped-def]
         return _statespace.statespace_forecast(native, steps, levels)
