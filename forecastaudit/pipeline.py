@@ -32,7 +32,9 @@ from forecastaudit.diagnosis.forecasts import (
     back_transform,
     forecast_findings,
     point_kind,
+    positive_interval_findings,
     residual_checks,
+    residual_findings,
     spread_band,
 )
 from forecastaudit.diagnosis.holdout import HoldoutResult, run_holdout
@@ -392,6 +394,9 @@ def _audit_stages(
     )
     residuals = {k: fc.residuals for k, fc in transformed.items() if fc.residuals is not None}
     residual_table = residual_checks(residuals, spec, len(series)) if residuals else None
+    # Findings about the model itself (notes unless the policy fails them).
+    findings += residual_findings(residual_table, tol)
+    findings += positive_interval_findings(forecasts, series.values, spec, tol)
 
     search_result = None
     if order_search:
@@ -705,4 +710,5 @@ def _run_holdout(
         backend=backend,
         time_limit=time_limit,
         progress=progress,
+        engines={key: adapter_class(key).engine for key in keys},
     )

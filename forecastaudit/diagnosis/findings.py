@@ -106,6 +106,20 @@ KINDS: dict[str, str] = {
         "changes the model (with d + D >= 2, a polynomial trend in levels)."
     ),
     "rule-of-thumb": "An advisory on the selected model (common practice, no source).",
+    "residual-autocorrelation": (
+        "A fit's residuals fail the Ljung-Box test of no autocorrelation (Ljung & Box 1978) "
+        "at the stated level: the model leaves structure in the data that it does not use."
+    ),
+    "interval-below-zero": (
+        "On a series whose every value is positive, a prediction interval reaches below "
+        "zero: the model puts probability on impossible values (a log or Box-Cox transform "
+        "cannot)."
+    ),
+    "outside-support-band": (
+        "The specified model is more than 2 AICc units above the best candidate with the "
+        "same differencing in the exhaustive reference search (Burnham & Anderson 2002): "
+        "other orders have substantially more support."
+    ),
     "ranking-flip": (
         "The ranking of candidate models differs between implementations: the choice of "
         "model depends on which one is used."

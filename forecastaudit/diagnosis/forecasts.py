@@ -22,8 +22,17 @@ from forecastaudit.diagnosis.metrics import (
     ljung_box,
 )
 from forecastaudit.diagnosis.tolerances import Tolerances
-from forecastaudit.estimate import Estimate, Forecast
+from forecastaudit.estimate import REFERENCE_KEY, Estimate, Forecast
 from forecastaudit.spec import ModelSpec
+
+#: Level of the Ljung-Box test below which a fit's residuals count as autocorrelated
+#: (:func:`residual_findings`). A fixed property of the diagnosis, not a tolerance: the kind
+#: of a finding never depends on tolerances. 0.001 rather than the customary 0.05 because
+#: the test is run once per estimator (and once at the reference optimum) on every audit,
+#: and over 2m lags of a few hundred residuals small autocorrelations of no practical
+#: consequence already reach 0.05; below 0.001 the model plainly misses structure
+#: (common practice, no source).
+RESIDUAL_LEVEL = 0.001
 
 POINT_KIND = {
     None: "mean (no transform)",
@@ -231,13 +240,158 @@ def residual_checks(
         kept = np.asarray(resid, dtype=float)[lost:]
         kept = kept[np.isfinite(kept)]  # a reference forecast may condition on fewer values
         test = ljung_box(kept, lags, model_df)
+        r = np.abs(np.asarray(test.autocorrelations, dtype=float))
+        largest = int(np.nanargmax(r)) if r.size and np.isfinite(r).any() else -1
         rows[key] = {
             "lags": test.lags,
             "df": test.df,
             "statistic": test.statistic,
             "p_value": test.p_value,
             "n": test.n,
+            # The lag with the largest absolute residual autocorrelation, and its value.
+            "largest_lag": largest + 1 if largest >= 0 else None,
+            "largest_autocorrelation": (
+                float(test.autocorrelations[largest]) if largest >= 0 else math.nan
+            ),
         }
     table = pd.DataFrame.from_dict(rows, orient="index")
     table.index.name = "estimator"
     return table
+
+
+def _model_severity(tol: Tolerances) -> str:
+    """Findings about the model itself warn, and fail under ``fail_on_model_findings``."""
+    return "fail" if tol.fail_on_model_findings else "warn"
+
+
+def residual_findings(
+    table: pd.DataFrame | None, tol: Tolerances, level: float = RESIDUAL_LEVEL
+) -> list[Finding]:
+    """One ``residual-autocorrelation`` finding per fit whose Ljung-Box p-value is below
+    ``level``.
+
+    Reads the table of :func:`residual_checks` (index: estimator key, the reference
+    optimum's residuals under ``"reference"``; columns ``lags``, ``df``, ``statistic``,
+    ``p_value``, ``n`` and, where present, ``largest_lag`` and
+    ``largest_autocorrelation``). Ljung, G.M., Box, G.E.P. (1978), Biometrika 65: Q is
+    chi-square with ``lags - (p + q + P + Q)`` degrees of freedom. A row whose p-value is
+    not defined (too few lags for the model's coefficients) gives no finding; the table
+    shows it.
+
+    Whether a finding is made depends on ``level`` only (a fixed, stated level); the
+    tolerances set its severity: ``warn``, or ``fail`` under ``tol.fail_on_model_findings``.
+    One finding per fit: the same finding about wrappers of one engine with the same
+    estimate is merged afterwards (:func:`forecastaudit.diagnosis.diagnose.merge_wrapper_findings`).
+    """
+    if table is None or table.empty:
+        return []
+    findings: list[Finding] = []
+    for key, row in table.iterrows():
+        p_value = float(row["p_value"])
+        if not math.isfinite(p_value) or p_value >= level:
+            continue
+        key = str(key)
+        whose = "the residuals at the reference optimum" if key == REFERENCE_KEY else (
+            f"{key}'s residuals"
+        )
+        lags, df, n = int(row["lags"]), int(row["df"]), int(row["n"])
+        statistic = float(row["statistic"])
+        values: dict[str, Any] = {
+            "statistic": statistic,
+            "p_value": p_value,
+            "lags": lags,
+            "df": df,
+            "n": n,
+            "level": level,
+        }
+        largest = ""
+        lag = row.get("largest_lag")
+        if lag is not None and not (isinstance(lag, float) and math.isnan(lag)):
+            r = float(row["largest_autocorrelation"])
+            largest = f" The largest autocorrelation is {r:+.3f}, at lag {int(lag)}."
+            values.update({"largest_lag": int(lag), "largest_autocorrelation": r})
+        findings.append(
+            Finding(
+                "residual-autocorrelation",
+                _model_severity(tol),
+                key,
+                "residuals",
+                f"The Ljung-Box test (Ljung & Box 1978) rejects uncorrelated residuals for "
+                f"{whose}: Q = {statistic:.2f} over lags 1 to {lags} (chi-square with {df} "
+                f"degrees of freedom: {lags} lags less the model's p + q + P + Q), "
+                f"p = {p_value:.2g}, below the level {level:g}, on {n} residuals after the "
+                f"start-up values.{largest} This is a finding about the model, not about "
+                "the implementation: the specified orders leave autocorrelation that the "
+                "forecasts do not use, and intervals that assume uncorrelated errors may be "
+                "miscalibrated. Consider other orders (see the order search) or a transform.",
+                values,
+            )
+        )
+    return findings
+
+
+def positive_interval_findings(
+    forecasts: Mapping[str, OriginalScaleForecast],
+    series_values: Any,
+    spec: ModelSpec,
+    tol: Tolerances,
+) -> list[Finding]:
+    """One ``interval-below-zero`` finding when every observed value is positive and the
+    widest interval of some forecast reaches below zero, on the original scale.
+
+    The forecasts are those of :func:`back_transform` (the reference optimum's included,
+    when present). Each forecast's widest level is read; the finding names every forecast
+    whose lower bound there goes below zero and the first step at which any does. With a
+    log or Box-Cox transform the back-transformed bounds are never negative (the inverse
+    transforms map onto the positive half-line, the Box-Cox one clipped at zero), so the
+    finding cannot arise; it is about the model (Gaussian errors on the original scale),
+    not about any implementation. Severity: ``warn``, or ``fail`` under
+    ``tol.fail_on_model_findings``.
+    """
+    observed = np.asarray(series_values, dtype=float)
+    observed = observed[np.isfinite(observed)]
+    if observed.size == 0 or not np.all(observed > 0):
+        return []
+    below: dict[str, int] = {}
+    lowest: dict[str, float] = {}
+    levels: dict[str, float] = {}
+    for key, fc in forecasts.items():
+        if not fc.lower:
+            continue
+        widest = max(fc.lower)
+        lower = np.asarray(fc.lower[widest], dtype=float)
+        negative = np.flatnonzero(lower < 0)
+        if negative.size:
+            below[key] = int(negative[0]) + 1
+            lowest[key] = float(np.min(lower))
+            levels[key] = float(widest)
+    if not below:
+        return []
+    first = min(below.values())
+    names = sorted(below, key=lambda k: (below[k], k))
+    level_text = ", ".join(sorted({f"{v:g}%" for v in levels.values()}))
+    suggestion = ModelSpec(spec.order, spec.seasonal, spec.period, mean=spec.mean, transform="log")
+    return [
+        Finding(
+            "interval-below-zero",
+            _model_severity(tol),
+            None,
+            "interval",
+            f"Every observed value is positive (smallest {float(observed.min()):.4g}), yet "
+            f"the lower bound of the widest ({level_text}) prediction interval of "
+            f"{', '.join(names)} is below zero from step {first} (lowest "
+            f"{min(lowest.values()):.4g}): the model puts probability on values the series "
+            "cannot take. This is a finding about the model (Gaussian errors on the "
+            "original scale), not about any implementation. A log or Box-Cox transform "
+            f"keeps forecasts and intervals positive: e.g. {suggestion}.",
+            {
+                "estimators": names,
+                "first_step": first,
+                "first_step_by_estimator": dict(below),
+                "lowest_bound": dict(lowest),
+                "level": dict(levels),
+                "smallest_observed": float(observed.min()),
+                "suggested_model": str(suggestion),
+            },
+        )
+    ]

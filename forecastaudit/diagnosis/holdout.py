@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, field
 from itertools import combinations
@@ -17,11 +18,38 @@ from forecastaudit.diagnosis.metrics import (
     mase_scale,
     point_accuracy,
 )
-from forecastaudit.estimate import Estimate, Forecast
+from forecastaudit.estimate import REFERENCE_ENGINE, Estimate, Forecast
 from forecastaudit.fitting import DEFAULT_TIME_LIMIT, fit_tasks, run_fits
 from forecastaudit.run import Backend
 from forecastaudit.series import prepare_series
 from forecastaudit.spec import ModelSpec
+
+#: A pairwise difference in holdout accuracy is immaterial when the mean squared-error loss
+#: differs by less than this fraction of the second forecast's mean squared-error loss (5%
+#: of the mean squared error is about 2.5% of the root mean squared error; common practice,
+#: no source). A Diebold-Mariano test on many errors can call such a difference significant.
+IMMATERIAL_LOSS = 0.05
+
+#: The level at which a Diebold-Mariano p-value is called significant in the comparison
+#: table's note (the customary 5%; common practice, no source).
+SIGNIFICANCE = 0.05
+
+#: Columns of :attr:`HoldoutResult.comparisons`, in order.
+COMPARISON_COLUMNS = (
+    "first",
+    "second",
+    "first_engine",
+    "second_engine",
+    "loss",
+    "mean_loss_difference",
+    "relative_loss_difference",
+    "immaterial",
+    "dm",
+    "dm_corrected",
+    "p_value",
+    "n",
+    "note",
+)
 
 
 # ---------------------------------------------------------------------- holdout
@@ -39,7 +67,15 @@ class HoldoutResult:
         Per estimator: MAE, RMSE, MAPE, MASE, coverage and mean interval score per level,
         pooled over origins.
     comparisons : pandas.DataFrame
-        Pairwise Diebold-Mariano tests (squared loss) with the small-sample correction.
+        Pairwise Diebold-Mariano tests (squared-error loss) with the small-sample
+        correction, between independent engines only (one estimator per engine, see
+        :func:`run_holdout`). Columns :data:`COMPARISON_COLUMNS`: ``mean_loss_difference``
+        is the mean of ``e_first^2 - e_second^2`` (negative favours the first);
+        ``relative_loss_difference`` divides it by the second's mean squared error (the
+        effect size beside the p-value); ``immaterial`` is True when its absolute value is
+        below :data:`IMMATERIAL_LOSS`; ``note`` says why a value is undefined, and
+        "significant but immaterial" where ``p_value`` < :data:`SIGNIFICANCE` and the
+        difference is immaterial.
     forecasts : dict
         Per origin, per estimator, the original-scale forecast.
     failures : dict
@@ -84,6 +120,7 @@ def run_holdout(
     reference_forecaster: ReferenceForecaster | None = None,
     reference_key: str = "reference",
     *,
+    engines: Mapping[str, str] | None = None,
     backend: Backend | int | None = None,
     time_limit: float | None = DEFAULT_TIME_LIMIT,
     progress: bool = False,
@@ -99,6 +136,14 @@ def run_holdout(
         The series on the original scale.
     reference_forecaster : callable, optional
         ``f(train_transformed, estimates, horizon) -> Forecast`` for the reference optimum.
+    engines : mapping of str to str, optional
+        Estimator key -> engine (lineage). Accuracy is scored for every estimator, but the
+        pairwise Diebold-Mariano comparisons are made only between independent engines:
+        one estimator per engine, the first key of each engine in the order of ``keys``
+        among those scored at every origin (wrappers of one engine are not independent
+        evidence). The reference optimum is its own engine (``forecastaudit-reference``).
+        Default None: each key is its own engine (every pair is compared). A key missing
+        from the mapping is its own engine.
     backend : Backend or int, optional
         Where the fits run (see :func:`forecastaudit.fitting.run_fits`).
     time_limit : float, optional
@@ -174,28 +219,67 @@ def run_holdout(
         rows[key] = row
     accuracy = pd.DataFrame.from_dict(rows, orient="index")
     accuracy.index.name = "estimator"
-    pairs = []
-    for a, b in combinations(complete, 2):
-        test = diebold_mariano(errors[a], errors[b], horizon=horizon)
-        pairs.append(
-            {
-                "first": a,
-                "second": b,
-                "mean_loss_difference": test.mean_difference,
-                "dm": test.statistic,
-                "dm_corrected": test.corrected_statistic,
-                "p_value": test.p_value,
-                "n": test.n,
-                "note": test.note,
-            }
-        )
+    lineage = _engines_of(complete, engines, reference_key)
+    representatives: dict[str, str] = {}
+    for key in complete:
+        representatives.setdefault(lineage[key], key)
+    pairs = [
+        _comparison(a, b, lineage, errors, horizon)
+        for a, b in combinations(list(representatives.values()), 2)
+    ]
     return HoldoutResult(
         horizon=horizon,
         origins=starts,
         accuracy=accuracy,
-        comparisons=pd.DataFrame(pairs),
+        comparisons=pd.DataFrame(pairs, columns=list(COMPARISON_COLUMNS)),
         forecasts=per_origin,
         actuals=actuals,
         failures=failures,
         point_forecast=point_kind(spec),
     )
+
+
+def _engines_of(
+    keys: Sequence[str], engines: Mapping[str, str] | None, reference_key: str
+) -> dict[str, str]:
+    """Engine of each key: from ``engines``, else the key itself; the reference its own."""
+    given = dict(engines or {})
+    out = {key: str(given.get(key, key)) for key in keys}
+    if reference_key in out:
+        out[reference_key] = REFERENCE_ENGINE
+    return out
+
+
+def _comparison(
+    a: str,
+    b: str,
+    lineage: Mapping[str, str],
+    errors: Mapping[str, np.ndarray],
+    horizon: int,
+) -> dict[str, Any]:
+    """One Diebold-Mariano comparison (squared-error loss) with its effect size."""
+    test = diebold_mariano(errors[a], errors[b], horizon=horizon, loss="squared")
+    second_loss = float(np.mean(errors[b] ** 2))
+    if second_loss > 0:
+        relative = test.mean_difference / second_loss
+    else:
+        relative = 0.0 if test.mean_difference == 0 else math.inf
+    immaterial = bool(math.isfinite(relative) and abs(relative) < IMMATERIAL_LOSS)
+    notes = [test.note] if test.note else []
+    if immaterial and math.isfinite(test.p_value) and test.p_value < SIGNIFICANCE:
+        notes.append("significant but immaterial")
+    return {
+        "first": a,
+        "second": b,
+        "first_engine": lineage[a],
+        "second_engine": lineage[b],
+        "loss": "squared error",
+        "mean_loss_difference": test.mean_difference,
+        "relative_loss_difference": relative,
+        "immaterial": immaterial,
+        "dm": test.statistic,
+        "dm_corrected": test.corrected_statistic,
+        "p_value": test.p_value,
+        "n": test.n,
+        "note": "; ".join(notes),
+    }
