@@ -409,6 +409,8 @@ def _audit_stages(
             estimators=keys,
             name=series.name,
             n_jobs=backend,
+            specified=spec,
+            tol=tol,
         )
         findings += search_result.findings
     order = {"fail": 0, "warn": 1, "info": 2}

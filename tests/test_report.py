@@ -412,3 +412,169 @@ def test_page_loads_in_headless_chromium(report: fa.AuditResult, html: str) -> N
     )
     assert dom.count('src="data:image/png;base64,') == html.count('src="data:image/png;base64,')
     assert 'id="caution"' in dom
+
+
+# ---------------------------------------------------------------------- verdict and policy
+def _section(page: str, section_id: str) -> str:
+    found = re.search(rf'<section id="{section_id}".*?</section>', page, re.S)
+    assert found is not None, section_id
+    return found.group(0)
+
+
+def _markdown_section(text: str, title: str) -> str:
+    start = text.index(f"### {title}\n")
+    end = text.find("\n### ", start + 1)
+    return text[start : end if end > 0 else len(text)]
+
+
+@pytest.mark.parametrize("outcome", ["pass", "pass-with-notes", "fail"])
+def test_verdict_says_what_the_outcome_means(report: fa.AuditResult, outcome: str) -> None:
+    infos = report.findings_of(severity="info")
+    extra = {
+        "pass": [],
+        "pass-with-notes": [Finding("reference-fit", "warn", None, None, "look at this")],
+        "fail": [Finding("fit-failed", "fail", "statsforecast", None, "it broke")],
+    }[outcome]
+    variant = dataclasses.replace(report, findings=[*extra, *infos])
+    assert variant.verdict == outcome
+    block = _section(render_html(variant), "verdict")
+    assert f'<span class="badge {outcome} big">' in block
+    assert _escaped(content.VERDICT_MEANINGS[outcome]) in block
+    assert "Production estimator" in block and _escaped(variant.production) in block
+    verdict = _markdown_section(render_markdown(variant), "Verdict")
+    word = content.VERDICT_LABELS[outcome]["word"]
+    assert f"{word}. {escape_markdown(content.VERDICT_MEANINGS[outcome])}" in verdict
+    assert f"**Production estimator:** {escape_markdown(variant.production)}" in verdict
+
+
+def test_every_verdict_badge_has_a_style() -> None:
+    css = (Path(fa.__file__).parent / "report" / "templates" / "style.css").read_text()
+    compact = (Path(fa.__file__).parent / "report" / "templates" / "compact.html.j2").read_text()
+    for outcome in content.VERDICT_LABELS:
+        assert f".badge.{outcome} {{" in css
+        assert f".verdict.{outcome} {{" in css
+        assert f".fa-compact .fa-{outcome} {{" in compact
+
+
+def test_policy_section_in_both_formats(report: fa.AuditResult, html: str, markdown: str) -> None:
+    assert report.production
+    block = _section(html, "policy")
+    assert _escaped(report.production) in block
+    for condition in report.policy["fails_when"]:
+        assert _escaped(condition) in block
+    assert 'id="table-materiality-thresholds"' in block and 'id="table-materiality"' in block
+    for key in report.materiality:
+        assert f'<th scope="row">{_escaped(key)}' in block
+    assert f"{_escaped(report.production)} (production)" in block
+    text = _markdown_section(markdown, "Policy")
+    assert f"**Production estimator:** {escape_markdown(report.production)}" in text
+    for condition in report.policy["fails_when"]:
+        assert f"  - {escape_markdown(condition)}" in text
+    for key in report.materiality:
+        assert f"| {escape_markdown(key)}" in text
+    # The policy section stands just before the tolerances, in both formats.
+    titles = _markdown_titles(markdown)
+    assert titles.index("Policy") + 1 == titles.index("Tolerances")
+    assert html.index('id="policy"') < html.index('id="tolerances"')
+
+
+def test_materiality_table_flags_measures_beyond_their_threshold(report: fa.AuditResult) -> None:
+    measured = {
+        "statsmodels-sarimax": {
+            "forecast_se": 0.01,
+            "forecast_percent": 0.02,
+            "width_ratio": 1.001,
+            "accuracy_difference": float("nan"),
+            "material": False,
+            "reasons": [],
+        },
+        "statsforecast": {
+            "forecast_se": 0.9,
+            "forecast_percent": 0.3,
+            "width_ratio": 0.9,
+            "accuracy_difference": 0.01,
+            "material": True,
+            "reasons": ["point forecasts 0.90 SE apart (threshold 0.5)"],
+        },
+    }
+    table = content.materiality_table(dataclasses.replace(report, materiality=measured))
+    assert table is not None
+    rows = {r.header: r for r in table.rows}
+    assert set(rows) == {"statsmodels-sarimax (production)", "statsforecast"}
+    flags = [c.flag for c in rows["statsforecast"].cells]
+    assert flags == ["material", None, "material", None, None]
+    assert rows["statsforecast"].cells[-1].text == "yes"
+    assert rows["statsmodels-sarimax (production)"].cells[-1].text == "no"
+    assert rows["statsforecast"].cells[3].text == "1.00%"
+    assert any("0.90 SE apart" in note for note in table.all_notes)
+    assert content.materiality_table(dataclasses.replace(report, materiality={})) is None
+
+
+def test_a_finding_about_several_wrappers_names_them_all(report: fa.AuditResult) -> None:
+    shared = Finding(
+        "default-overridden",
+        "warn",
+        "pmdarima",
+        "with_intercept",
+        "one finding for two wrappers",
+        {"members": ["pmdarima", "sktime"]},
+    )
+    variant = dataclasses.replace(report, findings=[shared, *report.findings])
+    page = render_html(variant)
+    assert page.count("one finding for two wrappers") == 1
+    assert '<span class="finding-who">pmdarima, sktime &middot; with_intercept</span>' in page
+    text = render_markdown(variant)
+    assert text.count("one finding for two wrappers") == 1
+    assert "`default-overridden` (pmdarima, sktime, with_intercept)" in text
+    assert "pmdarima, sktime" in render_compact_html(variant)
+
+
+# ---------------------------------------------------------------------- the demo audit
+@pytest.fixture(scope="module")
+def demo() -> fa.AuditResult:
+    """The demo audit with every estimator (four wrappers of one engine among them)."""
+    return fa.audit(fa.load_demo(), fa.DEMO_SPEC)
+
+
+def _wrappers(audit: fa.AuditResult, engine: str) -> list[str]:
+    return [k for k, e in audit.estimates.items() if e.engine == engine and e.ok]
+
+
+def test_demo_plots_draw_one_entry_per_engine(demo: fa.AuditResult) -> None:
+    wrappers = _wrappers(demo, "statsmodels-statespace")
+    if len(wrappers) < 2:
+        pytest.skip("fewer than two statsmodels-engine wrappers are installed")
+    plot = plots.parameter_plot(demo)
+    assert plot is not None
+    for key in wrappers:
+        assert len(re.findall(rf"(?<![\w-]){re.escape(key)}(?![\w-])", plot.alt)) == 1, key
+    entry = f"statsmodels-statespace ({len(wrappers)} wrappers): {', '.join(wrappers)}"
+    assert entry in plot.alt
+    entries = plots.estimator_entries(demo, [k for k in demo.parameters if k != "reference_se"])
+    assert [e.keys for e in entries if len(e.keys) > 1] == [tuple(wrappers)]
+    assert ("reference",) in [e.keys for e in entries]
+    forecasts = plots.forecast_plot(demo)
+    assert forecasts is not None and entry in forecasts.alt
+    assert f"({len(wrappers)} wrappers) is {', '.join(wrappers)}" in plot.caption
+
+
+def test_wrappers_with_different_estimates_stay_apart(demo: fa.AuditResult) -> None:
+    wrappers = _wrappers(demo, "statsmodels-statespace")
+    if len(wrappers) < 2:
+        pytest.skip("fewer than two statsmodels-engine wrappers are installed")
+    params = demo.parameters.copy()
+    params.iloc[0, params.columns.get_loc(wrappers[-1])] *= 1 + 1e-6
+    moved = dataclasses.replace(demo, parameters=params)
+    entries = plots.estimator_entries(moved, list(params.columns.drop("reference_se")))
+    assert (wrappers[-1],) in [e.keys for e in entries]
+    assert tuple(wrappers[:-1]) in [e.keys for e in entries]
+
+
+def test_demo_verdict_badge_is_pass_with_notes(demo: fa.AuditResult) -> None:
+    assert demo.verdict == "pass-with-notes"
+    page = render_html(demo)
+    block = _section(page, "verdict")
+    assert '<span class="badge pass-with-notes big">' in block
+    assert content.VERDICT_LABELS["pass-with-notes"]["word"] in block
+    assert _escaped(content.VERDICT_MEANINGS["pass-with-notes"]) in block
+    assert demo.production and _escaped(demo.production) in _section(page, "policy")

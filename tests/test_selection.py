@@ -356,3 +356,11 @@ def test_model_choice_record_is_json(nile_choice):
     record = json.loads(json.dumps(nile_choice.to_dict(), allow_nan=False))
     assert record["holdout"] == 10 and record["origins"] == 2
     assert record["aicc_ranks"]["reference"]["ARIMA(1,0,0) +mean"] is None
+
+
+def test_wrappers_that_agree_give_no_same_engine_disagreement(airline_audit):
+    # pmdarima and sktime (one engine), statsforecast and sktime-statsforecast (another)
+    # select alike here, so the one disagreement is between engines, not between wrappers.
+    found = airline_audit.findings_of(kind="search-disagreement")
+    assert [f.values["same_engine"] for f in found] == [False]
+    assert set(airline_audit.decomposition["same_engine"]) == {False}

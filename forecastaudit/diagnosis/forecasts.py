@@ -86,7 +86,8 @@ def _inverse(values: np.ndarray, lam: float | None) -> np.ndarray:
     if lam == 0.0:
         return np.exp(values)
     base = np.maximum(lam * np.asarray(values, dtype=float) + 1.0, 0.0)
-    return np.power(base, 1.0 / lam)
+    with np.errstate(divide="ignore"):  # lambda < 0: a base of 0 is an unbounded value (inf)
+        return np.power(base, 1.0 / lam)
 
 
 def back_transform(forecast: Forecast, spec: ModelSpec) -> OriginalScaleForecast:
@@ -291,8 +292,10 @@ def residual_findings(
         if not math.isfinite(p_value) or p_value >= level:
             continue
         key = str(key)
-        whose = "the residuals at the reference optimum" if key == REFERENCE_KEY else (
-            f"{key}'s residuals"
+        whose = (
+            "the residuals at the reference optimum"
+            if key == REFERENCE_KEY
+            else f"{key}'s residuals"
         )
         lags, df, n = int(row["lags"]), int(row["df"]), int(row["n"])
         statistic = float(row["statistic"])

@@ -27,6 +27,7 @@ __all__ = [
     "SEVERITY_LABELS",
     "Cell",
     "FindingGroup",
+    "Policy",
     "Row",
     "Summary",
     "Table",
@@ -36,9 +37,11 @@ __all__ = [
     "format_number",
     "holdout_tables",
     "likelihood_table",
+    "materiality_table",
     "order_search_tables",
     "package_table",
     "parameter_table",
+    "policy",
     "provenance_table",
     "residual_table",
     "summary",
@@ -57,12 +60,23 @@ VERDICT_LABELS: dict[str, dict[str, str]] = {
     "pass-with-notes": {"word": "PASS WITH NOTES", "symbol": "\u2713"},
     "fail": {"word": "FAIL", "symbol": "\u2717"},
 }
+# What each outcome means, in one sentence (the verdict block prints it under the badge).
+VERDICT_MEANINGS: dict[str, str] = {
+    "pass": "Nothing fails under the stated policy, and no finding asks a reviewer to look.",
+    "pass-with-notes": (
+        "Nothing fails under the stated policy; the notes below ask a reviewer to look."
+    ),
+    "fail": (
+        "At least one finding fails under the stated policy; the failures below say which and why."
+    ),
+}
 
 # Markers appended to flagged cells, with the note explaining them under the table.
 FLAG_MARKS: dict[str, tuple[str, str]] = {
     "beyond": ("\u2020", "differs from the reference optimum by more than the tolerance"),
     "changed": ("\u2021", "changed from the default"),
     "low-p": ("\u00a7", "p-value below 0.05: autocorrelation may remain in the residuals"),
+    "material": ("\u00b6", "beyond the materiality threshold of the policy"),
 }
 
 MISSING = "\u2013"  # en dash for a value that does not exist
@@ -218,6 +232,9 @@ class Summary:
     verdict: str
     verdict_word: str
     verdict_symbol: str
+    verdict_meaning: str
+    production: str | None
+    production_engine: str | None
     spec: str
     series_name: str
     n: int
@@ -235,6 +252,11 @@ class Summary:
     created: str
 
     @property
+    def production_text(self) -> str:
+        """The production estimator and its engine, or what the verdict covers without one."""
+        return _production_text(self.production, self.production_engine)
+
+    @property
     def date_range(self) -> str:
         """First to last label, or the positions when there is no time index."""
         if self.has_time_index:
@@ -243,14 +265,14 @@ class Summary:
 
     @property
     def engines_sentence(self) -> str:
-        """How many independent engines agree with the reference optimum, in words."""
+        """How many independent engines corroborate the production estimate, in words."""
         agreeing = len(self.engines_agreeing)
-        text = (
-            f"{agreeing} of {len(self.engines_fitted)} independent engine"
-            f"{'' if len(self.engines_fitted) == 1 else 's'} agree with the reference "
-            f"optimum (required: {self.engines_required})"
+        fitted = max(len(self.engines_fitted), agreeing)
+        return (
+            f"{agreeing} of {fitted} independent engine{'' if fitted == 1 else 's'} (the "
+            "reference counts as one) corroborate the production estimate (required: "
+            f"{self.engines_required})"
         )
-        return text
 
     @property
     def counts_sentence(self) -> str:
@@ -259,6 +281,22 @@ class Summary:
             f"{self.counts[s]} {SEVERITY_LABELS[s]['word'].lower()}"
             for s in ("fail", "warn", "info")
         )
+
+
+def _production_text(production: str | None, engine: str | None) -> str:
+    if not production:
+        return "none named: the verdict covers every estimator"
+    return f"{production} (engine {engine})" if engine else production
+
+
+def _production(report: AuditResult) -> tuple[str | None, str | None]:
+    """The production estimator's key and engine (plain text), or None for each."""
+    key = report.production
+    if not key:
+        return None, None
+    estimate = report.estimates.get(key)
+    engine = getattr(estimate, "engine", None) if estimate is not None else None
+    return _plain_text(key), (_plain_text(engine) if engine else None)
 
 
 def summary(report: AuditResult) -> Summary:
@@ -271,10 +309,14 @@ def summary(report: AuditResult) -> Summary:
             engine_values = f.values
             break
     run = [k for k in report.estimates if k != REFERENCE_KEY]
+    production, production_engine = _production(report)
     return Summary(
         verdict=report.verdict,
         verdict_word=VERDICT_LABELS[report.verdict]["word"],
         verdict_symbol=VERDICT_LABELS[report.verdict]["symbol"],
+        verdict_meaning=VERDICT_MEANINGS[report.verdict],
+        production=production,
+        production_engine=production_engine,
         spec=str(report.spec),
         series_name=_plain_text(report.series.name),
         n=len(report.series),
@@ -285,7 +327,10 @@ def summary(report: AuditResult) -> Summary:
         period=report.series.period,
         counts=counts,
         engines_agreeing=tuple(engine_values.get("agreeing", report.independent_engines)),
-        engines_fitted=tuple(engine_values.get("fitted", [])),
+        engines_fitted=tuple(
+            engine_values.get("fitted")
+            or [*engine_values.get("agreeing", ()), *engine_values.get("not_counted", {})]
+        ),
         engines_required=int(
             engine_values.get("required", report.tolerances.min_independent_engines)
         ),
@@ -308,6 +353,7 @@ class FindingItem:
     estimator: str
     quantity: str | None
     message: str
+    estimators: tuple[str, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -322,16 +368,20 @@ class FindingGroup:
 
 
 def _item(f: Finding) -> FindingItem:
+    """One finding for the report; a finding shared by several wrappers of one engine is
+    shown once, naming all of them."""
     label = SEVERITY_LABELS[f.severity]
+    who = tuple(_plain_text(e) for e in f.estimators)
     return FindingItem(
         severity=f.severity,
         word=label["word"],
         symbol=label["symbol"],
         kind=f.kind,
         explanation=KINDS.get(f.kind, ""),
-        estimator=_plain_text(f.estimator) if f.estimator else "the audit as a whole",
+        estimator=", ".join(who) if who else "the audit as a whole",
         quantity=_plain_text(f.quantity) if f.quantity else None,
         message=str(f.message),
+        estimators=who,
     )
 
 
@@ -570,6 +620,178 @@ def tolerance_table(report: AuditResult) -> Table:
         corner="tolerance",
         columns=("value", "default", "reason for the default"),
         rows=tuple(rows),
+    )
+
+
+# ---------------------------------------------------------------------- the policy
+# The materiality thresholds: key in ``AuditResult.policy["materiality"]``, the tolerance
+# that sets it, what it measures and how its value reads.
+_THRESHOLDS: tuple[tuple[str, str, str, Callable[[float], str]], ...] = (
+    (
+        "forecast_se",
+        "material_forecast_se",
+        "point-forecast difference, in forecast standard errors",
+        lambda v: format_number(v),
+    ),
+    (
+        "forecast_percent",
+        "material_forecast_percent",
+        "point-forecast difference, in percent of the point",
+        lambda v: f"{format_number(v, 'level')}%",
+    ),
+    (
+        "width_rtol",
+        "material_width_rtol",
+        "interval width, relative difference",
+        lambda v: f"{format_number(100.0 * v, 'level')}%",
+    ),
+    (
+        "accuracy_rtol",
+        "material_accuracy_rtol",
+        "holdout MASE, relative difference",
+        lambda v: f"{format_number(100.0 * v, 'level')}%",
+    ),
+)
+
+
+@dataclass(frozen=True)
+class Policy:
+    """The policy section: who the verdict is about, what fails, and what is material.
+
+    Attributes
+    ----------
+    production, production_engine : str or None
+        The production estimator and its engine (None: the verdict covers every estimator).
+    fails_when : tuple of str
+        The conditions that fail the audit, in words.
+    thresholds : Table
+        The materiality thresholds.
+    materiality : Table or None
+        Each estimator's disagreement in decision units, None when none was measured.
+    """
+
+    production: str | None
+    production_engine: str | None
+    fails_when: tuple[str, ...]
+    thresholds: Table
+    materiality: Table | None = None
+
+    @property
+    def production_text(self) -> str:
+        """The production estimator and its engine, in words."""
+        return _production_text(self.production, self.production_engine)
+
+    @property
+    def tables(self) -> tuple[Table, ...]:
+        """The thresholds, then the materiality table when there is one."""
+        return tuple(t for t in (self.thresholds, self.materiality) if t is not None)
+
+
+def policy(report: AuditResult) -> Policy:
+    """The stated policy of the audit, for the policy section."""
+    stated = report.policy
+    production, engine = _production(report)
+    limits = stated.get("materiality", {})
+    rows = [
+        Row(words, (Cell(shown(limits[key]), numeric=True), _text(tolerance)))
+        for key, tolerance, words, shown in _THRESHOLDS
+        if _finite(limits.get(key))
+    ]
+    thresholds = Table(
+        id="materiality-thresholds",
+        caption="Materiality thresholds: a difference matters beyond these",
+        corner="measure",
+        columns=("material beyond", "tolerance"),
+        rows=tuple(rows),
+        notes=(
+            "A difference is material when any one measure is beyond its threshold. The "
+            "thresholds are tolerances like the others: they can be overridden and are "
+            "written into the record.",
+        ),
+    )
+    return Policy(
+        production=production,
+        production_engine=engine,
+        fails_when=tuple(_plain_text(c) for c in stated.get("fails_when", ())),
+        thresholds=thresholds,
+        materiality=materiality_table(report),
+    )
+
+
+def _measures(value: Any) -> Mapping[str, Any]:
+    """One estimator's materiality as a mapping (a record's dict or a Materiality)."""
+    if isinstance(value, Mapping):
+        return value
+    to_dict = getattr(value, "to_dict", None)
+    return to_dict() if callable(to_dict) else {}
+
+
+def materiality_table(report: AuditResult) -> Table | None:
+    """Per estimator, its disagreement with the reference optimum in decision units.
+
+    Forecast difference in forecast standard errors and in percent of the point, the
+    interval width ratio, the relative holdout MASE difference and whether any is beyond
+    its threshold (the measure beyond it is flagged). None when nothing was measured.
+    """
+    measured = {key: _measures(value) for key, value in report.materiality.items()}
+    if not measured:
+        return None
+    limits = report.policy.get("materiality", {})
+
+    def beyond(value: Any, threshold: Any) -> str | None:
+        over = _finite(value) and _finite(threshold) and value > threshold
+        return "material" if over else None
+
+    def column(name: str) -> list[Any]:
+        return [m.get(name) for m in measured.values()]
+
+    se_kind = column_kind(column("forecast_se"), significant=3)
+    percent_kind = column_kind(column("forecast_percent"), significant=3)
+    rows = []
+    reasons = []
+    for key, m in measured.items():
+        se, percent = m.get("forecast_se"), m.get("forecast_percent")
+        ratio, accuracy = m.get("width_ratio"), m.get("accuracy_difference")
+        width_off = abs(ratio - 1.0) if _finite(ratio) else None
+        accuracy_off = abs(accuracy) if _finite(accuracy) else None
+        material = m.get("material")
+        label = _plain_text(key) + (" (production)" if key == report.production else "")
+        rows.append(
+            Row(
+                label,
+                (
+                    _num(se, se_kind, beyond(se, limits.get("forecast_se"))),
+                    _num(percent, percent_kind, beyond(percent, limits.get("forecast_percent"))),
+                    _num(ratio, "fixed4", beyond(width_off, limits.get("width_rtol"))),
+                    _num(accuracy, "percent", beyond(accuracy_off, limits.get("accuracy_rtol"))),
+                    Cell(format_number(bool(material)) if material is not None else MISSING),
+                ),
+            )
+        )
+        if material and m.get("reasons"):
+            reasons.append(
+                f"{_plain_text(key)}: " + "; ".join(_plain_text(r) for r in m["reasons"]) + "."
+            )
+    notes = (
+        "Each estimate's forecasts against those at the reference optimum, at the step "
+        "where they differ most"
+        + ("; the holdout difference needs a holdout." if report.holdout is None else "."),
+        *reasons,
+    )
+    return Table(
+        id="materiality",
+        caption="Materiality: each estimator's difference from the reference optimum in "
+        "decision units",
+        corner="estimator",
+        columns=(
+            "forecast difference (forecast SEs)",
+            "forecast difference (% of the point)",
+            "interval width ratio",
+            "holdout MASE difference",
+            "material",
+        ),
+        rows=tuple(rows),
+        notes=notes,
     )
 
 

@@ -26,6 +26,7 @@ __all__ = ["SECTIONS", "TEMPLATES", "Section", "render_compact_html", "render_ht
 # The template that draws each kind of section (its body; heading and intro are the page's).
 TEMPLATES: dict[str, str] = {
     "verdict": "section_verdict.html.j2",
+    "policy": "section_policy.html.j2",
     "findings": "section_findings.html.j2",
     "tables": "section_tables.html.j2",
     "plots": "section_plots.html.j2",

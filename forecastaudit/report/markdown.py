@@ -84,7 +84,8 @@ def _verdict(s: content.Summary) -> list[str]:
     from forecastaudit.result import CAUTION
 
     return [
-        f"- **Verdict:** {s.verdict_symbol} {s.verdict_word}",
+        f"- **Verdict:** {s.verdict_symbol} {s.verdict_word}. {escape_markdown(s.verdict_meaning)}",
+        f"- **Production estimator:** {escape_markdown(s.production_text)}",
         f"- **Model:** `{s.spec}`",
         f"- **Series:** {escape_markdown(s.series_name)}, {s.n} observations, "
         f"{escape_markdown(s.date_range)}" + (f", period {s.period}" if s.period else ""),
@@ -96,6 +97,16 @@ def _verdict(s: content.Summary) -> list[str]:
         "",
         f"> **Caution.** {escape_markdown(CAUTION)}",
     ]
+
+
+def _policy(p: content.Policy) -> list[str]:
+    lines = [
+        f"- **Production estimator:** {escape_markdown(p.production_text)}",
+        "- **The audit fails when:**",
+        *(f"  - {escape_markdown(condition)}" for condition in p.fails_when),
+        "",
+    ]
+    return lines + _tables(list(p.tables))
 
 
 def _findings(groups: list[content.FindingGroup]) -> list[str]:
@@ -140,6 +151,7 @@ def _caution(text: str) -> list[str]:
 # How each kind of section is written (heading and intro are written by render_markdown).
 WRITERS: dict[str, Callable[[Any], list[str]]] = {
     "verdict": _verdict,
+    "policy": _policy,
     "findings": _findings,
     "tables": _tables,
     "plots": _plots,
@@ -161,8 +173,8 @@ def render_markdown(report: AuditResult) -> str:
         A title line, then the sections of the HTML report in the same order, each a
         level-3 heading with its intro: verdict, findings (fail and warn in full, info in a
         collapsed list), the tables the audit has data for, the figures (title and
-        description; the images are in the HTML report), tolerances, provenance and the
-        caution.
+        description; the images are in the HTML report), the policy, tolerances,
+        provenance and the caution.
     """
     data = ReportData(report)
     s = data.summary

@@ -8,6 +8,11 @@ data for it. Figures are released as soon as they are drawn.
 
 Colours come from :data:`PALETTE`; estimators are told apart by marker and line style as
 well as colour, so the figures read in greyscale and with colour-vision deficiencies.
+
+Figures are drawn per engine, not per wrapper: wrappers of one engine that return the same
+estimate (:func:`estimator_entries`) are one entry, labelled with the engine and the number
+of wrappers, and the alternative text and caption name every wrapper. The reference optimum
+is always its own entry.
 """
 
 from __future__ import annotations
@@ -15,7 +20,7 @@ from __future__ import annotations
 import base64
 import io
 import math
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from typing import TYPE_CHECKING, Any
 
@@ -31,7 +36,9 @@ if TYPE_CHECKING:
 
 __all__ = [
     "PALETTE",
+    "Entry",
     "Plot",
+    "estimator_entries",
     "figure_to_png",
     "forecast_plot",
     "likelihood_grid_plot",
@@ -179,6 +186,108 @@ def _style_of(position: int) -> dict[str, Any]:
     }
 
 
+# ---------------------------------------------------------------------- one entry per engine
+#: Estimates of two wrappers of one engine are the same when every parameter agrees to this
+#: relative difference.
+SAME_ESTIMATE_RTOL = 1e-9
+
+
+@dataclass(frozen=True)
+class Entry:
+    """One thing drawn in a figure: an estimator, or the wrappers of one engine that return
+    the same estimate.
+
+    Attributes
+    ----------
+    keys : tuple of str
+        The estimator keys drawn as this entry, in the audit's order.
+    engine : str or None
+        Their engine.
+    """
+
+    keys: tuple[str, ...]
+    engine: str | None = None
+
+    @property
+    def key(self) -> str:
+        """The first key (whose data the figure draws)."""
+        return self.keys[0]
+
+    @property
+    def label(self) -> str:
+        """Short label for ticks and legends: the key, or the engine and how many wrappers."""
+        if len(self.keys) == 1:
+            return self.keys[0]
+        return f"{self.engine} ({len(self.keys)} wrappers)"
+
+    @property
+    def full(self) -> str:
+        """The label naming every wrapper, for alternative texts and captions."""
+        if len(self.keys) == 1:
+            return self.keys[0]
+        return f"{self.label}: {', '.join(self.keys)}"
+
+
+def _same_vector(a: np.ndarray, b: np.ndarray) -> bool:
+    if a.shape != b.shape or not np.isfinite(a).any():
+        return False
+    return bool(np.allclose(a, b, rtol=SAME_ESTIMATE_RTOL, atol=0.0, equal_nan=True))
+
+
+def estimator_entries(
+    report: AuditResult,
+    keys: Sequence[str],
+    same: Callable[[str, str], bool] | None = None,
+) -> list[Entry]:
+    """The entries a figure draws for ``keys``: one per engine whose wrappers agree.
+
+    Wrappers of one engine whose canonical parameters agree to :data:`SAME_ESTIMATE_RTOL`
+    (relative) are one entry; so are they only if ``same(first_key, key)`` holds too, when
+    given (a figure of forecasts also asks the forecasts to agree). The reference optimum
+    and estimators without parameters are entries of their own. Order: first appearance.
+    """
+    frame = report.parameters
+    groups: list[list[str]] = []
+    engines: list[str | None] = []
+    for key in keys:
+        estimate = report.estimates.get(key)
+        engine = getattr(estimate, "engine", None) if estimate is not None else None
+        vector = frame[key].to_numpy(dtype=float) if key in frame.columns else None
+        placed = False
+        if key != REFERENCE_KEY and engine and vector is not None:
+            for group, group_engine in zip(groups, engines, strict=True):
+                first = group[0]
+                if (
+                    group_engine == engine
+                    and first != REFERENCE_KEY
+                    and first in frame.columns
+                    and _same_vector(frame[first].to_numpy(dtype=float), vector)
+                    and (same is None or same(first, key))
+                ):
+                    group.append(key)
+                    placed = True
+                    break
+        if not placed:
+            groups.append([key])
+            engines.append(engine)
+    return [
+        Entry(tuple(str(k) for k in group), engine)
+        for group, engine in zip(groups, engines, strict=True)
+    ]
+
+
+def _entries_sentence(entries: Sequence[Entry]) -> str:
+    """A caption sentence naming the wrappers behind each merged entry, or ''."""
+    merged = [e for e in entries if len(e.keys) > 1]
+    if not merged:
+        return ""
+    return (
+        " Wrappers of one engine that return the same estimate are drawn once: "
+        + "; ".join(f"{e.label} is {', '.join(e.keys)}" for e in merged)
+        + "."
+    )
+
+
 # ---------------------------------------------------------------------- parameters
 def parameter_plot(report: AuditResult) -> Plot | None:
     """Each parameter per estimator, against +-1 and +-2 reference standard errors.
@@ -197,8 +306,9 @@ def parameter_plot(report: AuditResult) -> Plot | None:
     if not keys:
         return None
     names = list(frame.index)
-    order = list(reversed(keys))  # first estimator on top
-    figure = _new_figure(8.6, 0.9 + len(names) * (0.55 + 0.32 * len(keys)))
+    entries = estimator_entries(report, keys)
+    order = list(reversed(entries))  # first estimator on top
+    figure = _new_figure(8.6, 0.9 + len(names) * (0.55 + 0.32 * len(entries)))
     axes = figure.subplots(len(names), 1, squeeze=False)[:, 0]
     outside: list[str] = []
     for ax, name in zip(axes, names, strict=True):
@@ -218,11 +328,11 @@ def parameter_plot(report: AuditResult) -> Plot | None:
             )
         if _finite(ref):
             ax.axvline(ref, color=PALETTE["reference"], lw=1.2, label="reference optimum")
-        for row, key in enumerate(order):
-            value = frame.at[name, key]
+        for row, entry in enumerate(order):
+            value = frame.at[name, entry.key]
             if not _finite(value):
                 continue
-            style = _style_of(keys.index(key))
+            style = _style_of(entries.index(entry))
             ax.plot(
                 [value],
                 [row],
@@ -234,9 +344,9 @@ def parameter_plot(report: AuditResult) -> Plot | None:
                 markeredgewidth=0.6,
             )
             if _finite(ref) and _finite(se) and se > 0 and abs(value - ref) > 2 * se:
-                outside.append(f"{key} ({name})")
+                outside.append(f"{entry.label} ({name})")
         ax.set_yticks(range(len(order)))
-        ax.set_yticklabels([_label(k) for k in order], fontsize=9)
+        ax.set_yticklabels([_label(e.label) for e in order], fontsize=9)
         ax.set_ylim(-0.7, len(order) - 0.3)
         title = _label(name)
         if _finite(se):
@@ -250,8 +360,8 @@ def parameter_plot(report: AuditResult) -> Plot | None:
     png = figure_to_png(figure)
     alt = (
         f"Dot chart of {len(names)} parameters ({', '.join(names)}) as estimated by "
-        f"{', '.join(keys)}, each against the reference optimum with bands of one and two "
-        "reference standard errors. "
+        f"{'; '.join(e.full for e in entries)}, each against the reference optimum with bands "
+        "of one and two reference standard errors. "
         + (
             f"Outside two standard errors: {', '.join(outside)}."
             if outside
@@ -263,9 +373,9 @@ def parameter_plot(report: AuditResult) -> Plot | None:
         title="Parameter estimates against the reference standard errors",
         alt=alt,
         caption=(
-            "Each row is an estimator. The vertical line is the reference optimum; the dark "
-            "band is \u00b11 reference standard error around it, the light band \u00b12. "
-            "Wrappers of one engine usually sit on top of each other."
+            "Each row is an estimator, or one engine whose wrappers return the same estimate. "
+            "The vertical line is the reference optimum; the dark band is \u00b11 reference "
+            "standard error around it, the light band \u00b12." + _entries_sentence(entries)
         ),
         png_base64=png,
     )
@@ -369,10 +479,24 @@ def forecast_plot(report: AuditResult, history: int | None = None) -> Plot | Non
             lw=0.8,
             label="spread across engines",
         )
-    for position, (key, fc) in enumerate(forecasts.items()):
+
+    def same_forecast(a: str, b: str) -> bool:
+        return _same_vector(
+            np.asarray(forecasts[a].median, dtype=float),
+            np.asarray(forecasts[b].median, dtype=float),
+        )
+
+    entries = estimator_entries(report, list(forecasts), same_forecast)
+    for position, entry in enumerate(entries):
+        key, fc = entry.key, forecasts[entry.key]
         if key == REFERENCE_KEY:
             ax.plot(
-                x_future, fc.median, color=PALETTE["reference"], lw=1.8, label="reference optimum"
+                x_future,
+                fc.median,
+                color=PALETTE["reference"],
+                lw=1.8,
+                zorder=2.5,  # under the estimators' markers, which often sit on it
+                label="reference optimum",
             )
             continue
         style = _style_of(position)
@@ -384,7 +508,8 @@ def forecast_plot(report: AuditResult, history: int | None = None) -> Plot | Non
             linestyle=style["linestyle"],
             marker=style["marker"],
             markersize=3.5,
-            label=_label(key),
+            zorder=3,
+            label=_label(entry.label),
         )
     ax.set_ylabel("original scale", fontsize=9, color=PALETTE["ink"])
     figure.legend(loc="outside right center", frameon=False, fontsize=8)
@@ -392,7 +517,7 @@ def forecast_plot(report: AuditResult, history: int | None = None) -> Plot | Non
     widest = max(base.lower) if base.lower else None
     alt = (
         f"Line chart of the last {shown} observations and {steps} steps of point forecasts "
-        f"from {', '.join(forecasts)}"
+        f"from {'; '.join(e.full for e in entries)}"
         + (f", with the {widest:g}% interval at {base_key}" if widest is not None else "")
         + "; the hatched band is the range of point forecasts across independent engines."
     )
@@ -409,6 +534,7 @@ def forecast_plot(report: AuditResult, history: int | None = None) -> Plot | Non
             "Shaded: prediction intervals at the reference optimum. Hatched: lowest to highest "
             "point forecast across independent engines. A spread that is small beside the "
             "interval does not change any decision the forecast supports."
+            + _entries_sentence(entries)
         ),
         png_base64=png,
     )
@@ -578,20 +704,24 @@ def likelihood_profile_plots(report: AuditResult) -> list[Plot]:
     """One profile per disagreeing estimate: the reference log-likelihood along the line
     from the reference optimum (t = 0) to that estimate (t = 1)."""
     plots = []
-    for key, frame in report.profiles.items():
+    for entry in estimator_entries(report, list(report.profiles)):
+        frame = report.profiles[entry.key]
         plot = likelihood_profile_figure(
             frame["t"].to_numpy(),
             frame["profiled_loglike"].to_numpy(),
             REFERENCE_KEY,
-            key,
+            entry.label,
             report.tolerances.loglike_atol,
         )
+        alt = plot.alt
+        if len(entry.keys) > 1:
+            alt = alt.replace(entry.label, entry.full, 1)
         plots.append(
             Plot(
-                id=f"plot-profile-{_slug(key)}",
-                title=f"Likelihood between the reference optimum and {key}",
-                alt=plot.alt,
-                caption=plot.caption,
+                id=f"plot-profile-{_slug(entry.key)}",
+                title=f"Likelihood between the reference optimum and {entry.label}",
+                alt=alt,
+                caption=plot.caption + _entries_sentence([entry]),
                 png_base64=plot.png_base64,
             )
         )
@@ -617,15 +747,22 @@ def likelihood_grid_plot(report: AuditResult) -> Plot | None:
     if levels:
         contours = ax.contour(x, y, z, levels=levels, colors=PALETTE["series"], linewidths=1.0)
         ax.clabel(contours, fmt=lambda v: f"-{best - v:g}", fontsize=7)
-    for i, (key, point) in enumerate(grid.get("points", {}).items()):
+    points = grid.get("points", {})
+    entries = estimator_entries(report, list(points))
+    for i, entry in enumerate(entries):
+        point = points[entry.key]
         ax.plot(
             point[grid["names"][0]],
             point[grid["names"][1]],
             marker=MARKERS[i % len(MARKERS)],
-            color=PALETTE["reference"] if key == REFERENCE_KEY else ESTIMATOR_COLOURS[i % 7],
+            color=(
+                PALETTE["reference"]
+                if entry.key == REFERENCE_KEY
+                else ESTIMATOR_COLOURS[i % len(ESTIMATOR_COLOURS)]
+            ),
             linestyle="none",
             markersize=7,
-            label=_label(key),
+            label=_label(entry.label),
         )
     ax.set_xlabel(grid["names"][0])
     ax.set_ylabel(grid["names"][1])
@@ -636,12 +773,12 @@ def likelihood_grid_plot(report: AuditResult) -> Plot | None:
         title=f"Reference log-likelihood over {names}",
         alt=(
             f"Contour plot of the profiled reference log-likelihood over {names}; contours "
-            "mark drops of 0.5, 2, 4.5 and 8 below the best value; markers show the reference "
-            "optimum and each disagreeing estimate."
+            "mark drops of 0.5, 2, 4.5 and 8 below the best value; markers show "
+            f"{'; '.join(e.full for e in entries) or 'no estimate'}."
         ),
         caption=(
             "One closed set of contours means one optimum; long parallel contours mean a "
-            "ridge (weak identification); two sets mean two optima."
+            "ridge (weak identification); two sets mean two optima." + _entries_sentence(entries)
         ),
         png_base64=figure_to_png(figure),
     )

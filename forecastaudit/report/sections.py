@@ -2,10 +2,11 @@
 
 Each :class:`Section` says what the section is (its anchor, title and optional intro), what
 kind of content it holds and how to build that content from an audit. The builders return
-format-free data (a :class:`~forecastaudit.report.content.Summary`, finding groups,
+format-free data (a :class:`~forecastaudit.report.content.Summary`, the
+:class:`~forecastaudit.report.content.Policy`, finding groups,
 :class:`~forecastaudit.report.content.Table` objects, :class:`~forecastaudit.report.plots.Plot`
 objects, the caution text) or None when the audit holds no data for the section, which
-then is left out of every format. Each renderer maps the five kinds to its own markup, so
+then is left out of every format. Each renderer maps the six kinds to its own markup, so
 both formats show the same sections, in the same order, under the same titles and intros.
 Adding a section is one entry in :data:`SECTIONS`; adding a kind means teaching each
 renderer to draw it (the tests check that every kind has a drawing in every format).
@@ -34,8 +35,8 @@ __all__ = [
     "built_sections",
 ]
 
-SectionKind = Literal["verdict", "findings", "tables", "plots", "caution"]
-KINDS: tuple[SectionKind, ...] = ("verdict", "findings", "tables", "plots", "caution")
+SectionKind = Literal["verdict", "policy", "findings", "tables", "plots", "caution"]
+KINDS: tuple[SectionKind, ...] = ("verdict", "policy", "findings", "tables", "plots", "caution")
 
 
 class ReportData:
@@ -81,9 +82,10 @@ class Section:
         Stable anchor (HTML id, test hook).
     title : str
         The heading, the same in every format.
-    kind : {"verdict", "findings", "tables", "plots", "caution"}
+    kind : {"verdict", "policy", "findings", "tables", "plots", "caution"}
         What :attr:`build` returns, and so how each renderer draws it: a
-        :class:`~forecastaudit.report.content.Summary`; a list of
+        :class:`~forecastaudit.report.content.Summary`; a
+        :class:`~forecastaudit.report.content.Policy`; a list of
         :class:`~forecastaudit.report.content.FindingGroup`; a list of
         :class:`~forecastaudit.report.content.Table`; a list of
         :class:`~forecastaudit.report.plots.Plot`; the caution text.
@@ -175,6 +177,10 @@ def _plots(data: ReportData) -> list[Plot] | None:
     return list(data.plots) or None
 
 
+def _policy(data: ReportData) -> content.Policy:
+    return content.policy(data.report)
+
+
 def _tolerances(data: ReportData) -> list[content.Table] | None:
     return _kept(content.tolerance_table(data.report))
 
@@ -232,6 +238,18 @@ SECTIONS: tuple[Section, ...] = (
     Section("holdout", "Holdout accuracy", "tables", _holdout),
     Section("order-search", "Order searches", "tables", _order_search),
     Section("plots", "Plots", "plots", _plots),
+    Section(
+        "policy",
+        "Policy",
+        "policy",
+        _policy,
+        intro=(
+            "What the verdict is about and what makes the audit fail. A production estimate "
+            "beyond tolerance of the reference optimum fails only when the difference is also "
+            "material: when it moves the forecasts, their intervals or their accuracy by more "
+            "than the thresholds below."
+        ),
+    ),
     Section(
         "tolerances",
         "Tolerances",

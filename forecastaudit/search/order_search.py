@@ -26,6 +26,7 @@ import pandas as pd
 
 from forecastaudit.adapters.registry import available_searches
 from forecastaudit.diagnosis.findings import Finding, select_findings
+from forecastaudit.diagnosis.tolerances import Tolerances
 from forecastaudit.errors import SpecError
 from forecastaudit.estimate import SearchOutcome
 from forecastaudit.fitting import SearchTask, fit_tasks, run_fits, run_searches
@@ -38,7 +39,7 @@ from forecastaudit.search.decomposition import (
     _setting_value,
     _tests_summary,
 )
-from forecastaudit.search.exhaustive import exhaustive_reference_search
+from forecastaudit.search.exhaustive import SUPPORT_BAND, exhaustive_reference_search
 from forecastaudit.series import prepare_series
 from forecastaudit.spec import ModelSpec
 
@@ -297,6 +298,8 @@ def audit_order_search(
     n_jobs: int | Backend | None = None,
     check_defaults: bool = True,
     name: str | None = None,
+    specified: ModelSpec | None = None,
+    tol: Tolerances | None = None,
 ) -> OrderSearchAudit:
     """Audit the automatic order searches of every installed stack on one series.
 
@@ -327,6 +330,16 @@ def audit_order_search(
         Run the default-constant check through the fit adapters.
     name : str, optional
         Display name of the series.
+    specified : ModelSpec, optional
+        The model the audit was asked about. Its differencing is searched as well and the
+        model itself fitted, so that it is ranked by reference AICc among the candidates
+        with its own d and D (recorded in ``exhaustive["specified"]`` and the candidates'
+        ``specified`` column); more than 2 AICc units above the best of them gives an
+        ``outside-support-band`` finding (Burnham & Anderson 2002, section 2.6). Its
+        transform must be ``transform`` and its period this series' period.
+    tol : Tolerances, optional
+        Sets only the severity of findings about the model (``fail_on_model_findings``);
+        default :class:`Tolerances()`.
 
     Returns
     -------
@@ -336,6 +349,8 @@ def audit_order_search(
     m = series.period if series.period and series.period > 1 else 1
     base_spec = ModelSpec(period=m if m > 1 else None, transform=transform)
     y_t = series.transformed(base_spec)
+    tol = tol if tol is not None else Tolerances()
+    wanted = _specified_plain(specified, m, base_spec.transform)
     keys = list(searches) if searches is not None else available_searches()
     if not keys:
         raise SpecError("searches is empty; pass None for every installed search.")
@@ -374,6 +389,10 @@ def audit_order_search(
     findings += disagreements
 
     choices = {(o.spec.d, o.spec.D) for o in ok.values() if o.spec is not None}
+    extra = [o.spec for o in ok.values() if o.spec is not None]
+    if wanted is not None:
+        choices.add((wanted.d, wanted.D))
+        extra.append(wanted)
     candidates, info = exhaustive_reference_search(
         y_t,
         m,
@@ -382,7 +401,7 @@ def audit_order_search(
         max_q=max_q,
         max_P=max_P,
         max_Q=max_Q,
-        extra=[o.spec for o in ok.values() if o.spec is not None],
+        extra=extra,
         n_jobs=backend,
     )
     chosen: dict[str, list[str]] = {}
@@ -392,6 +411,11 @@ def audit_order_search(
         candidates["chosen_by"] = [
             ", ".join(chosen.get(t, [])) or None for t in candidates["model"]
         ]
+        if wanted is not None:
+            candidates["specified"] = candidates["model"] == _text(wanted)
+            placed, band_findings = _support_band(wanted, candidates, tol)
+            info["specified"] = placed
+            findings += band_findings
 
     selection_rows = []
     for key, o in outcomes.items():
@@ -510,6 +534,92 @@ def audit_order_search(
         exhaustive=info,
         reruns=reruns,
     )
+
+
+def _specified_plain(
+    specified: ModelSpec | None, m: int, transform: str | None
+) -> ModelSpec | None:
+    """The specified model's orders and constant at this search's period (no transform)."""
+    if specified is None:
+        return None
+    if not isinstance(specified, ModelSpec):
+        raise SpecError(f"specified must be a ModelSpec, got {type(specified).__name__}.")
+    if specified.transform != transform:
+        raise SpecError(
+            f"The specified model {specified} has transform {specified.transform}, but the "
+            f"order searches run on the series with transform {transform}: AICc values of "
+            "differently transformed series do not compare."
+        )
+    if specified.period is not None and any(specified.seasonal) and specified.m != m:
+        raise SpecError(
+            f"The specified model {specified} has period {specified.m}, but the order "
+            f"searches run with period {m}."
+        )
+    return ModelSpec(specified.order, specified.seasonal, m if m > 1 else None, specified.mean)
+
+
+def _support_band(
+    wanted: ModelSpec, candidates: pd.DataFrame, tol: Tolerances
+) -> tuple[dict[str, Any], list[Finding]]:
+    """Where the specified model ranks by reference AICc among the candidates with its own
+    differencing, and an ``outside-support-band`` finding when it is more than
+    :data:`~forecastaudit.search.exhaustive.SUPPORT_BAND` units above the best.
+
+    Burnham, K.P., Anderson, D.R. (2002), *Model Selection and Multimodel Inference*, 2nd
+    ed., section 2.6: models within 2 AICc units of the best have substantial support.
+    Only candidates with the same (d, D) are compared: information criteria do not compare
+    models with different differencing (common practice, no source). Whether a finding is
+    made depends on the fixed band only; ``tol.fail_on_model_findings`` sets its severity.
+    """
+    text = _text(wanted)
+    same = candidates[(candidates["d"] == wanted.d) & (candidates["D"] == wanted.D)]
+    match = same[same["model"] == text]
+    if match.empty:
+        return {"model": text, "status": "not fitted"}, []
+    row = match.iloc[0]
+    best = same.iloc[0]
+    delta = float(row["delta_aicc"])
+    placed: dict[str, Any] = {
+        "model": text,
+        "d": wanted.d,
+        "D": wanted.D,
+        "aicc": float(row["aicc"]),
+        "rank": int(row["rank"]),
+        "of": len(same),
+        "delta_aicc": delta,
+        "best": best["model"],
+        "best_aicc": float(best["aicc"]),
+        "within_band": bool(row["within_2"]),
+        "status": "ranked" if np.isfinite(delta) else f"not ranked: {row['note'] or 'no AICc'}",
+    }
+    if not np.isfinite(delta) or delta <= SUPPORT_BAND:
+        return placed, []
+    supported = same[same["within_2"]]["model"].tolist()
+    finding = Finding(
+        "outside-support-band",
+        "fail" if tol.fail_on_model_findings else "warn",
+        None,
+        "aicc",
+        f"The specified model {text} ranks {int(row['rank'])} of {len(same)} by reference "
+        f"AICc among the candidates with d={wanted.d}, D={wanted.D} in the exhaustive "
+        f"reference search: {delta:.2f} AICc units above the best, {best['model']}, outside "
+        f"the {SUPPORT_BAND:g}-unit band of substantial support (Burnham & Anderson 2002, "
+        f"section 2.6). Supported: {', '.join(supported)}. This is a finding about the "
+        "model, not about any implementation. Only models with the same differencing are "
+        "ranked against it: information criteria do not compare models with different "
+        "differencing (common practice, no source); compare those on a holdout.",
+        {
+            "model": text,
+            "rank": int(row["rank"]),
+            "of": len(same),
+            "delta_aicc": delta,
+            "best": best["model"],
+            "best_aicc": float(best["aicc"]),
+            "supported": supported,
+            "band": SUPPORT_BAND,
+        },
+    )
+    return placed, [finding]
 
 
 def _differencing_findings(ok: Mapping[str, SearchOutcome], findings: list[Finding]) -> None:
