@@ -203,6 +203,31 @@ def _cmd_estimators(args: argparse.Namespace) -> int:
     return EXIT_PASS
 
 
+def _add_command(
+    sub: Any, name: str, summary: str, passed: str = "the audit passed"
+) -> argparse.ArgumentParser:
+    """A sub-command whose help ends with the exit codes, exit 0 meaning ``passed``."""
+    return sub.add_parser(
+        name,
+        help=summary,
+        epilog=_EPILOG.replace("the audit passed", passed),
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+
+
+def _add_data_arguments(parser: argparse.ArgumentParser, column_help: str) -> None:
+    """The data file, the column to read from it and its date column."""
+    parser.add_argument("data", help="CSV or Parquet file, one row per period")
+    parser.add_argument("--column", help=column_help)
+    parser.add_argument("--date-column", help="column of dates (default: the first, if dates)")
+
+
+def _add_period_and_estimators(parser: argparse.ArgumentParser, estimators_help: str) -> None:
+    """The seasonal period and the estimators to run."""
+    parser.add_argument("--period", type=int, help="seasonal period, if the dates do not imply it")
+    parser.add_argument("--estimators", help=estimators_help)
+
+
 def build_parser() -> argparse.ArgumentParser:
     """The argument parser (exposed for documentation and tests)."""
     parser = argparse.ArgumentParser(
@@ -218,33 +243,20 @@ def build_parser() -> argparse.ArgumentParser:
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
     sub.required = True
 
-    demo = sub.add_parser(
-        "demo",
-        help="audit the built-in demo series and write its record",
-        epilog=_EPILOG,
-        formatter_class=argparse.RawDescriptionHelpFormatter,
-    )
+    demo = _add_command(sub, "demo", "audit the built-in demo series and write its record")
     demo.add_argument("--out", default="demo-output", help="output folder (default: %(default)s)")
     demo.add_argument("--quiet", action="store_true", help="no progress bar")
     demo.set_defaults(func=_cmd_demo)
 
-    run = sub.add_parser(
-        "audit",
-        help="audit one column of a CSV or Parquet file",
-        epilog=_EPILOG,
-        formatter_class=argparse.RawDescriptionHelpFormatter,
-    )
-    run.add_argument("data", help="CSV or Parquet file, one row per period")
-    run.add_argument("--column", help="column to audit (default: the only numeric column)")
-    run.add_argument("--date-column", help="column of dates (default: the first, if dates)")
+    run = _add_command(sub, "audit", "audit one column of a CSV or Parquet file")
+    _add_data_arguments(run, "column to audit (default: the only numeric column)")
     run.add_argument(
         "--model",
         required=True,
         help="model in text form, e.g. 'ARIMA(0,1,1)x(0,1,1)12 +log'",
     )
-    run.add_argument("--period", type=int, help="seasonal period, if the dates do not imply it")
-    run.add_argument(
-        "--estimators", help="comma-separated estimator keys (default: all; see 'estimators')"
+    _add_period_and_estimators(
+        run, "comma-separated estimator keys (default: all; see 'estimators')"
     )
     run.add_argument(
         "--tolerance",
@@ -279,33 +291,30 @@ def build_parser() -> argparse.ArgumentParser:
     run.add_argument("--quiet", action="store_true", help="no progress bar")
     run.set_defaults(func=_cmd_audit)
 
-    drift = sub.add_parser(
+    drift = _add_command(
+        sub,
         "drift",
-        help="compare two audit records (e.g. before and after a library upgrade)",
-        epilog=_EPILOG.replace("the audit passed", "nothing drifted beyond tolerance"),
-        formatter_class=argparse.RawDescriptionHelpFormatter,
+        "compare two audit records (e.g. before and after a library upgrade)",
+        passed="nothing drifted beyond tolerance",
     )
     drift.add_argument("old", help="the signed-off record (JSON)")
     drift.add_argument("new", help="the new record (JSON)")
     drift.add_argument("--out", help="write the drift table as JSON to this file")
     drift.set_defaults(func=_cmd_drift)
 
-    choose = sub.add_parser(
+    choose = _add_command(
+        sub,
         "compare-models",
-        help="is the ranking of candidate models the same in every implementation?",
-        epilog=_EPILOG.replace("the audit passed", "the ranking is the same everywhere"),
-        formatter_class=argparse.RawDescriptionHelpFormatter,
+        "is the ranking of candidate models the same in every implementation?",
+        passed="the ranking is the same everywhere",
     )
-    choose.add_argument("data", help="CSV or Parquet file, one row per period")
-    choose.add_argument("--column", help="column to use (default: the only numeric column)")
-    choose.add_argument("--date-column", help="column of dates (default: the first, if dates)")
+    _add_data_arguments(choose, "column to use (default: the only numeric column)")
     choose.add_argument(
         "--model", action="append", required=True, help="a candidate model (repeat, 2 or more)"
     )
     choose.add_argument("--holdout", type=int, required=True, help="steps held out per origin")
     choose.add_argument("--origins", type=int, default=1, help="holdout windows (default: 1)")
-    choose.add_argument("--period", type=int, help="seasonal period, if the dates do not imply it")
-    choose.add_argument("--estimators", help="comma-separated estimator keys (default: all)")
+    _add_period_and_estimators(choose, "comma-separated estimator keys (default: all)")
     choose.add_argument("--out", help="write the comparison as JSON to this file")
     choose.set_defaults(func=_cmd_compare_models)
 

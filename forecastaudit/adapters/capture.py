@@ -22,6 +22,36 @@ class _Captured:
     output: str
     seconds: float
 
+    @property
+    def failed(self) -> bool:
+        """Whether the call raised or returned None."""
+        return bool(self.error) or self.result is None
+
+    def failure(self, what: str) -> dict[str, Any]:
+        """The fields of a failed outcome when this call raised or returned None.
+
+        ``what`` names the call in the reason given for an empty result ("the fit returned
+        nothing"); the printed output keeps the traceback.
+        """
+        return {
+            "status": "failed",
+            "reason": self.error or f"the {what} returned nothing",
+            "warnings": self.warnings,
+            "output": (self.output + "\n" + self.trace).strip(),
+            "seconds": self.seconds,
+        }
+
+    def kept(self, seconds: float | None = None) -> dict[str, Any]:
+        """The warnings, printed output and wall time of this call, for its outcome.
+
+        ``seconds`` replaces the call's own wall time when given.
+        """
+        return {
+            "warnings": self.warnings,
+            "output": self.output,
+            "seconds": self.seconds if seconds is None else seconds,
+        }
+
 
 def _run_captured(func: Any, *args: Any) -> _Captured:
     """Call ``func``, keeping its warnings and printed output; a raised error is returned."""

@@ -201,17 +201,8 @@ class ForecastOutput:
 def _forecast_from(key: str, steps: int, levels: tuple[float, ...], call: _Captured) -> Forecast:
     from scipy.stats import norm
 
-    if call.error or call.result is None:
-        return Forecast(
-            key=key,
-            status="failed",
-            steps=steps,
-            levels=levels,
-            reason=call.error or "the forecast returned nothing",
-            warnings=call.warnings,
-            output=(call.output + "\n" + call.trace).strip(),
-            seconds=call.seconds,
-        )
+    if call.failed:
+        return Forecast(key=key, steps=steps, levels=levels, **call.failure("forecast"))
     out: ForecastOutput = call.result
     se, derived = out.se, False
     if se is None:
@@ -231,9 +222,7 @@ def _forecast_from(key: str, steps: int, levels: tuple[float, ...], call: _Captu
         interval_method=out.interval_method,
         sigma2_used=float(out.sigma2_used),
         residuals=None if out.residuals is None else np.asarray(out.residuals, dtype=float),
-        warnings=call.warnings,
-        output=call.output,
-        seconds=call.seconds,
+        **call.kept(),
     )
 
 
@@ -347,50 +336,32 @@ class EstimatorAdapter(LibraryBound, ABC):
             )
         own = FitRequest(np.array(request.y, dtype=float, copy=True), spec)
         call = _run_captured(self._fit, own)
-        result = call.result
-        if call.error or result is None:
-            return Estimate(
-                **base,
-                status="failed",
-                reason=call.error or "the fit returned nothing",
-                warnings=call.warnings,
-                output=(call.output + "\n" + call.trace).strip(),
-                seconds=call.seconds,
-            )
-        return self._estimate_from(result, base, spec, request.n_w, call)
+        if call.failed:
+            return Estimate(**base, **call.failure("fit"))
+        return self._estimate_from(call.result, base, spec, request.n_w, call)
 
     def _estimate_from(
         self, result: FitOutput, base: dict[str, Any], spec: ModelSpec, n_w: int, call: _Captured
     ) -> Estimate:
         names = coefficient_names(spec)
         native_params = {str(k_): float(v) for k_, v in result.native_params.items()}
+
+        def failed(reason: str) -> Estimate:
+            return Estimate(
+                **base, status="failed", reason=reason, native_params=native_params, **call.kept()
+            )
+
         missing = [name for name in names if name not in result.params]
         if missing:
-            return Estimate(
-                **base,
-                status="failed",
-                reason=f"the fit returned no value for {', '.join(missing)}",
-                native_params=native_params,
-                warnings=call.warnings,
-                output=call.output,
-                seconds=call.seconds,
-            )
+            return failed(f"the fit returned no value for {', '.join(missing)}")
         params = {name: float(result.params[name]) for name in names}
         params["sigma2"] = float(result.sigma2_ml)
         not_finite = [name for name, value in params.items() if not math.isfinite(value)]
         if not_finite:
             # A library that reports success with NaN or infinite values has not fitted.
-            return Estimate(
-                **base,
-                status="failed",
-                reason=(
-                    "the library reported a fit but returned non-finite values for "
-                    f"{', '.join(not_finite)}; nothing usable was estimated"
-                ),
-                native_params=native_params,
-                warnings=call.warnings,
-                output=call.output,
-                seconds=call.seconds,
+            return failed(
+                "the library reported a fit but returned non-finite values for "
+                f"{', '.join(not_finite)}; nothing usable was estimated"
             )
         ordered = {name: params[name] for name in parameter_names(spec)}
         extra = {str(k_): float(v) for k_, v in result.extra_terms.items()}
@@ -428,10 +399,8 @@ class EstimatorAdapter(LibraryBound, ABC):
             notes=list(result.notes),
             fitted_model=fitted_model,
             overridden_defaults=to_plain(dict(result.overridden_defaults), nonfinite="tagged"),
-            warnings=call.warnings,
-            output=call.output,
-            seconds=call.seconds,
             native=result.native,
+            **call.kept(),
         )
 
     @abstractmethod
@@ -447,21 +416,11 @@ class EstimatorAdapter(LibraryBound, ABC):
         failure; the forecast's status says what happened.
         """
         if not self.capabilities.forecast:
-            return Forecast(
-                key=self.key,
-                status="failed",
-                steps=steps,
-                levels=levels,
-                reason=f"{self.description} does not forecast (declared in its capabilities)",
-            )
+            reason = f"{self.description} does not forecast (declared in its capabilities)"
+            return Forecast(self.key, "failed", steps, levels, reason=reason)
         if not estimate.ok or estimate.native is None:
-            return Forecast(
-                key=self.key,
-                status="failed",
-                steps=steps,
-                levels=levels,
-                reason=f"no fitted model to forecast from ({estimate.status})",
-            )
+            reason = f"no fitted model to forecast from ({estimate.status})"
+            return Forecast(self.key, "failed", steps, levels, reason=reason)
         call = _run_captured(self._forecast, estimate.native, steps, levels)
         return _forecast_from(self.key, steps, levels, call)
 
@@ -476,16 +435,11 @@ class EstimatorAdapter(LibraryBound, ABC):
         EstimatorError
             When the adapter does not declare ``own_loglike``.
         """
-        if not self.capabilities.own_loglike:
-            raise EstimatorError(
-                f"{self.key} cannot evaluate its own likelihood at given parameters."
-            )
+        self._require("own_loglike", "evaluate its own likelihood at given parameters")
         call = _run_captured(
             self._loglike_at, FitRequest(np.array(request.y, dtype=float), request.spec), params
         )
-        if call.error or call.result is None:
-            return math.nan
-        return float(call.result)
+        return math.nan if call.failed else float(call.result)
 
     def forecast_at(
         self,
@@ -496,12 +450,16 @@ class EstimatorAdapter(LibraryBound, ABC):
         levels: tuple[float, ...],
     ) -> Forecast:
         """Filter ``y`` at given canonical parameters and forecast (``forecast_at_params``)."""
-        if not self.capabilities.forecast_at_params:
-            raise EstimatorError(f"{self.key} cannot forecast at given parameters.")
+        self._require("forecast_at_params", "forecast at given parameters")
         call = _run_captured(
             self._forecast_at, np.array(y, dtype=float, copy=True), spec, params, steps, levels
         )
         return _forecast_from(self.key, steps, levels, call)
+
+    def _require(self, capability: str, action: str) -> None:
+        """Raise :class:`EstimatorError` unless the adapter declares ``capability``."""
+        if not getattr(self.capabilities, capability):
+            raise EstimatorError(f"{self.key} cannot {action}.")
 
     def _forecast(self, native: Any, steps: int, levels: tuple[float, ...]) -> ForecastOutput:
         """Forecast with the library from its fitted object ``native``."""

@@ -145,15 +145,8 @@ class SearchAdapter(LibraryBound, ABC):
         y = np.array(y_transformed, dtype=float, copy=True)
         m = int(period) if period and period > 1 else 1
         call = _run_captured(self._run, y, m, settings)
-        if call.error or call.result is None:
-            return SearchOutcome(
-                **base,
-                status="failed",
-                reason=call.error or "the search returned nothing",
-                warnings=call.warnings,
-                output=(call.output + "\n" + call.trace).strip(),
-                seconds=call.seconds,
-            )
+        if call.failed:
+            return SearchOutcome(**base, **call.failure("search"))
         result: SearchResult = call.result
         seconds = float(call.seconds if result.seconds is None else result.seconds)
         spec = ModelSpec(
@@ -178,10 +171,8 @@ class SearchAdapter(LibraryBound, ABC):
             bounds=dict(result.bounds),
             options=dict(result.options),
             notes=list(result.notes),
-            warnings=call.warnings,
-            output=call.output,
-            seconds=seconds,
             native=result.native,
+            **call.kept(seconds),
         )
 
     @abstractmethod

@@ -102,32 +102,14 @@ def _boundary_findings(
 
 # ---------------------------------------------------------------------- diagnosis
 def _status_findings(e: Estimate) -> list[Finding]:
-    if e.status == "unavailable":
-        return [Finding("unavailable", "info", e.key, None, e.reason)]
-    if e.status == "unsupported":
-        return [Finding("unsupported", "info", e.key, None, e.reason)]
+    if e.status in ("unavailable", "unsupported"):
+        return [Finding(e.status, "info", e.key, None, e.reason)]
     if e.status == "timed-out":
-        return [
-            Finding(
-                "fit-failed",
-                "warn",
-                e.key,
-                None,
-                f"{e.key} gave no result within the time limit and was stopped: {e.reason}",
-                {"status": e.status},
-            )
-        ]
+        message = f"{e.key} gave no result within the time limit and was stopped: {e.reason}"
+        return [Finding("fit-failed", "warn", e.key, None, message, {"status": e.status})]
     if e.status == "failed":
-        return [
-            Finding(
-                "fit-failed",
-                "warn",
-                e.key,
-                None,
-                f"{e.key} could not fit the model: {e.reason}",
-                {"output": e.output[-2000:]},
-            )
-        ]
+        message = f"{e.key} could not fit the model: {e.reason}"
+        return [Finding("fit-failed", "warn", e.key, None, message, {"output": e.output[-2000:]})]
     return []
 
 

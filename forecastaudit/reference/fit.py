@@ -246,10 +246,9 @@ def fit_reference(
 
     Parameters
     ----------
-    y_transformed : array_like
-        The series after the spec's transform, before differencing.
-    spec : ModelSpec
-        The model.
+    y_transformed, spec
+        The series (after the spec's transform, before differencing) and the model, as in
+        :func:`~forecastaudit.reference.likelihood.evaluate`.
     starts : mapping label -> params, or sequence of (label, params), optional
         Starting values in canonical names (typically each estimator's estimate). Starts
         outside the stationary/invertible region are pulled just inside

@@ -34,10 +34,9 @@ def profile_line(
 
     Parameters
     ----------
-    y_transformed : array_like
-        The series after the spec's transform, before differencing.
-    spec : ModelSpec
-        The model.
+    y_transformed, spec
+        The series (after the spec's transform, before differencing) and the model, as in
+        :func:`~forecastaudit.reference.likelihood.evaluate`.
     params_a, params_b : mapping
         Canonical parameters of the two estimates.
     n_points : int
@@ -85,10 +84,9 @@ def profile_grid(
 
     Parameters
     ----------
-    y_transformed : array_like
-        The series after the spec's transform, before differencing.
-    spec : ModelSpec
-        The model.
+    y_transformed, spec
+        The series (after the spec's transform, before differencing) and the model, as in
+        :func:`~forecastaudit.reference.likelihood.evaluate`.
     params : mapping
         Canonical parameters; all but the two named stay at these values.
     names : (str, str)
