@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import dataclasses
 import datetime as _dt
 import math
 from collections.abc import Iterable, Mapping, Sequence
@@ -22,10 +21,10 @@ from forecastaudit.conventions import (
 from forecastaudit.diagnosis.diagnose import (
     CAUSE_KINDS,
     OwnObjective,
-    _severity,
     classify,
     diagnose,
     merge_wrapper_findings,
+    with_policy_severity,
 )
 from forecastaudit.diagnosis.findings import Finding
 from forecastaudit.diagnosis.forecasts import (
@@ -38,7 +37,7 @@ from forecastaudit.diagnosis.forecasts import (
     spread_band,
 )
 from forecastaudit.diagnosis.holdout import HoldoutResult, run_holdout
-from forecastaudit.diagnosis.materiality import Materiality, measure_materiality
+from forecastaudit.diagnosis.materiality import measure_materiality
 from forecastaudit.diagnosis.rescore import Rescore, canonical_criteria
 from forecastaudit.diagnosis.tables import likelihood_table, parameter_table
 from forecastaudit.diagnosis.tolerances import Tolerances
@@ -385,7 +384,7 @@ def _audit_stages(
     profiles, grid = _likelihood_profiles(_reference, y_t, spec, estimates, reference, findings)
     engines = {k: all_estimates[k].engine for k in forecasts}
     spread = spread_band(forecasts, engines, REFERENCE_KEY, max(level_tuple)) if forecasts else None
-    findings += _with_policy_severity(
+    findings += with_policy_severity(
         forecast_findings(forecasts, transformed, estimates, REFERENCE_KEY, tol),
         materiality,
         production,
@@ -545,29 +544,6 @@ def _check_remedies(
             )
         )
     return remedies
-
-
-def _with_policy_severity(
-    findings: list[Finding],
-    materiality: Mapping[str, Materiality],
-    production: str | None,
-    tol: Tolerances,
-    explained: set[str],
-) -> list[Finding]:
-    """Forecast and interval differences get their severity from the policy: beyond
-    tolerance, they fail only when material and about the production estimator."""
-    out = []
-    for f in findings:
-        found = materiality.get(f.estimator or "")
-        if f.severity != "info" and found is not None:
-            severity = _severity(f.estimator or "", True, found.material, production, tol)
-            if f.estimator in explained:
-                # The estimate's cause finding already states these differences in its
-                # materiality: kept for the detail, not counted again.
-                severity = "info"
-            f = dataclasses.replace(f, severity=severity)
-        out.append(f)
-    return out
 
 
 def _check_levels(levels: Sequence[float]) -> tuple[float, ...]:

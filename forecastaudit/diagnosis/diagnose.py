@@ -6,6 +6,7 @@ only on what the estimates declare (engine, status, definitions, conversions).
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from collections.abc import Mapping
 from dataclasses import dataclass
@@ -813,3 +814,26 @@ def merge_wrapper_findings(
             )
         )
     return merged
+
+
+def with_policy_severity(
+    findings: list[Finding],
+    materiality: Mapping[str, Materiality],
+    production: str | None,
+    tol: Tolerances,
+    explained: set[str],
+) -> list[Finding]:
+    """Forecast and interval differences get their severity from the policy: beyond
+    tolerance, they fail only when material and about the production estimator."""
+    out = []
+    for f in findings:
+        found = materiality.get(f.estimator or "")
+        if f.severity != "info" and found is not None:
+            severity = _severity(f.estimator or "", True, found.material, production, tol)
+            if f.estimator in explained:
+                # The estimate's cause finding already states these differences in its
+                # materiality: kept for the detail, not counted again.
+                severity = "info"
+            f = dataclasses.replace(f, severity=severity)
+        out.append(f)
+    return out
