@@ -7,13 +7,17 @@ outcome is always there, whatever happened to the item: it finished (``"ok"``), 
 (``"failed"``), ran past its time limit (``"timed-out"``) or took its worker process down with
 it (``"crashed"``). One bad item never stops the others.
 
-Two backends are provided:
+Three backends are provided:
 
 * :class:`InlineBackend` runs the items one at a time in this process. It is the default,
   the easiest to debug, and it cannot stop a function that hangs.
 * :class:`ProcessBackend` keeps a few local worker processes alive for its whole lifetime
   and sends each of them one item at a time. It enforces per-item time limits by stopping
   the worker and starting a fresh one, and it survives workers that die.
+* :class:`DaskBackend` sends the items to the workers of a Dask distributed cluster (a
+  ``LocalCluster`` or a cluster of many machines), one item per worker thread at a time.
+  It enforces time limits by restarting the worker that runs an item past its limit, and
+  reports an item whose workers died as ``"crashed"``.
 
 Both limit the BLAS and OpenMP thread pools to one thread while a function runs, so that
 several workers do not oversubscribe the cores and so that results do not depend on how
@@ -56,6 +60,7 @@ from forecastaudit.errors import ForecastAuditError
 
 __all__ = [
     "Backend",
+    "DaskBackend",
     "ExecutionError",
     "InlineBackend",
     "Outcome",
@@ -617,6 +622,251 @@ class ProcessBackend(Backend):
 # -- helpers of the process backend -----------------------------------------------------------
 
 
+class DaskBackend(Backend):
+    """Run items on the workers of a Dask distributed cluster.
+
+    At most one item per worker thread is in the cluster at any time, so an item starts as
+    soon as it is sent, its run time is measured from then, and a huge batch never floods
+    the scheduler. Results stream back as items finish.
+
+    * An exception in the function gives ``"failed"`` for that item only, as with the other
+      backends; so does a function or item that cannot be sent to the cluster.
+    * An item that runs past ``time_limit`` gets ``"timed-out"``: it is cancelled and the
+      worker running it is restarted by its nanny (the only way to stop a running Python
+      function). Without a nanny the worker cannot be restarted, the item is still reported
+      ``"timed-out"`` and its thread stays busy until the function returns.
+    * An item whose workers keep dying (the scheduler gives up after
+      ``distributed.scheduler.allowed-failures`` attempts, 3 by default) gets ``"crashed"``.
+
+    Each item runs with the BLAS and OpenMP libraries limited to one thread
+    (``threadpoolctl``); Dask's nanny already sets ``OMP_NUM_THREADS`` and its kin to 1 in
+    every worker process. Use workers with one thread each (``threads_per_worker=1``): the
+    limit is per process, and the libraries fitted here hold the GIL most of the time.
+
+    Parameters
+    ----------
+    client : distributed.Client or str
+        A connected client, or the address of a scheduler (``"tcp://10.0.0.5:8786"``) to
+        connect to. A client made here is closed by :meth:`close`; a client passed in is
+        left open.
+    preload : sequence of str, optional
+        Modules every worker imports once before the first item (so that a library's
+        import time does not count against an item's time limit). Modules that fail to
+        import are skipped.
+
+    Raises
+    ------
+    ExecutionError
+        If Dask distributed is not installed, the scheduler cannot be reached, or the
+        cluster has no workers.
+    """
+
+    name = "dask"
+    enforces_time_limit = True
+
+    def __init__(self, client: Any, *, preload: Sequence[str] = ()) -> None:
+        try:
+            import distributed
+        except ImportError:
+            raise ExecutionError(
+                "Running on a Dask cluster needs Dask distributed: pip install "
+                "'forecastaudit[all]' (or 'dask[distributed]')."
+            ) from None
+        self._own_client = False
+        if isinstance(client, str):
+            try:
+                client = distributed.Client(client, timeout=30)
+            except Exception as exc:  # OSError, TimeoutError, ValueError of a bad address
+                raise ExecutionError(
+                    f"Cannot connect to the Dask scheduler at {client!r}: {_describe(exc)}. "
+                    "Check the address (for example tcp://host:8786) and that the "
+                    "scheduler is running."
+                ) from None
+            self._own_client = True
+        elif not isinstance(client, distributed.Client):
+            raise ExecutionError(
+                "client must be a dask.distributed.Client or a scheduler address such as "
+                f"'tcp://host:8786'; got {type(client).__name__}."
+            )
+        self.client = client
+        self.preload: tuple[str, ...] = (preload,) if isinstance(preload, str) else tuple(preload)
+        self._preloaded: set[str] = set()
+        self.workers = self._threads()
+        if self.workers < 1:
+            with contextlib.suppress(Exception):
+                self.client.wait_for_workers(1, timeout=30)
+            self.workers = self._threads()
+        if self.workers < 1:
+            raise ExecutionError(
+                "The Dask cluster has no workers; start some (dask worker <scheduler>) or "
+                "wait for them, then try again."
+            )
+
+    def __repr__(self) -> str:
+        return f"DaskBackend(workers={self.workers}, scheduler={self.client.scheduler.address!r})"
+
+    def _threads(self) -> int:
+        try:
+            return int(sum(self.client.nthreads().values()))
+        except Exception:
+            return 0
+
+    def stream(
+        self,
+        func: Callable[[Any], Any],
+        items: Iterable[Any],
+        *,
+        labels: Sequence[str] | None = None,
+        time_limit: float | None = None,
+        progress: str | bool | None = None,
+    ) -> Iterator[tuple[int, Outcome]]:
+        """Run ``func`` on every item in the cluster; yield ``(index, outcome)`` as each ends.
+
+        See :meth:`Backend.stream`.
+        """
+        items, names = _check_batch(func, items, labels, time_limit, progress)
+        return self._stream(func, items, names, time_limit, progress)
+
+    def close(self) -> None:
+        """Close the client if this backend connected it. Safe to call twice."""
+        if self._own_client:
+            with contextlib.suppress(Exception):
+                self.client.close()
+
+    def _stream(
+        self,
+        func: Callable[[Any], Any],
+        items: list[Any],
+        names: list[str],
+        time_limit: float | None,
+        progress: str | bool | None,
+    ) -> Iterator[tuple[int, Outcome]]:
+        import distributed
+
+        self._preload()
+        bar = _progress_bar(progress, len(items))
+        pending = deque(range(len(items)))
+        running: dict[Any, tuple[int, float]] = {}
+        batch = f"forecastaudit-{os.getpid()}-{time.time_ns()}"
+        try:
+            while pending or running:
+                capacity = max(1, self._threads())
+                while pending and len(running) < capacity:
+                    index = pending.popleft()
+                    try:
+                        future = self.client.submit(
+                            _dask_call, func, items[index], key=f"{batch}-{index}", pure=False
+                        )
+                    except Exception as exc:
+                        problem = f"the item could not be sent to the cluster: {_describe(exc)}"
+                        yield self._done(bar, index, Outcome(names[index], "failed", error=problem))
+                        continue
+                    running[future] = (index, time.perf_counter())
+                if not running:
+                    continue
+                wait = 0.5 if time_limit is None else min(0.5, time_limit)
+                try:
+                    done = distributed.wait(
+                        list(running), timeout=wait, return_when="FIRST_COMPLETED"
+                    ).done
+                except TimeoutError:  # nothing finished within ``wait``
+                    done = set()
+                now = time.perf_counter()
+                for future in done:
+                    index, started = running.pop(future)
+                    outcome = _dask_outcome(future, names[index], now - started)
+                    future.release()
+                    yield self._done(bar, index, outcome)
+                if time_limit is not None:
+                    late = [f for f, (_, started) in running.items() if now - started > time_limit]
+                    if late:
+                        self._stop(late)
+                    for future in late:
+                        index, started = running.pop(future)
+                        outcome = Outcome(
+                            names[index],
+                            "timed-out",
+                            error=(
+                                f"ran past the time limit of {time_limit:g} s; its Dask worker "
+                                "was restarted"
+                            ),
+                            seconds=now - started,
+                        )
+                        yield self._done(bar, index, outcome)
+        finally:
+            for future in running:
+                with contextlib.suppress(Exception):
+                    future.cancel()
+            if bar is not None:
+                bar.close()
+
+    @staticmethod
+    def _done(bar: Any, index: int, outcome: Outcome) -> tuple[int, Outcome]:
+        if bar is not None:
+            bar.update(1)
+        return index, outcome
+
+    def _preload(self) -> None:
+        wanted = [name for name in self.preload if name not in self._preloaded]
+        if wanted:
+            with contextlib.suppress(Exception):
+                self.client.run(_import_quietly, wanted)
+            self._preloaded.update(wanted)
+
+    def _stop(self, futures: list[Any]) -> None:
+        """Cancel the futures and restart the workers that are running them."""
+        keys = {future.key for future in futures}
+        try:
+            processing = self.client.processing()
+        except Exception:
+            processing = {}
+        busy = [worker for worker, held in processing.items() if keys & set(held)]
+        for future in futures:
+            with contextlib.suppress(Exception):
+                future.cancel()
+        if busy:
+            with contextlib.suppress(Exception):
+                self.client.restart_workers(workers=busy, timeout=60, raise_for_error=False)
+
+
+def _dask_call(func: Callable[[Any], Any], item: Any) -> tuple[Any, ...]:
+    """Run one item on a Dask worker: the worker-process protocol, in one call."""
+    try:
+        with _one_thread_pool():
+            value = func(item)
+    except Exception as exc:
+        return ("failed", _describe(exc), _short_trace(exc))
+    return ("ok", value)
+
+
+def _dask_outcome(future: Any, label: str, seconds: float) -> Outcome:
+    """Turn a finished Dask future into an outcome."""
+    try:
+        message = future.result()
+    except Exception as exc:
+        if type(exc).__name__ == "KilledWorker":
+            problem = (
+                "its Dask workers died while running it (the scheduler gave up after "
+                f"repeated attempts): {_describe(exc)}"
+            )
+            return Outcome(label, "crashed", error=problem, seconds=seconds)
+        if isinstance(exc, TimeoutError | OSError):
+            problem = f"the cluster lost it: {_describe(exc)}"
+            return Outcome(label, "crashed", error=problem, seconds=seconds)
+        problem = f"the cluster could not run it: {_describe(exc)}"
+        return Outcome(label, "failed", error=problem, trace=_short_trace(exc), seconds=seconds)
+    if message[0] == "ok":
+        return Outcome(label, "ok", message[1], seconds=seconds)
+    _, error, trace = message
+    return Outcome(label, "failed", error=error, trace=trace, seconds=seconds)
+
+
+def _import_quietly(names: list[str]) -> None:
+    for name in names:
+        with contextlib.suppress(Exception):
+            importlib.import_module(name)
+
+
 class _Batch:
     """The state of one ``stream`` call on a :class:`ProcessBackend`."""
 
@@ -945,8 +1195,10 @@ def _is_whole_number(value: Any) -> bool:
 # -- choosing a backend -----------------------------------------------------------------------
 
 
-def make_backend(workers: int | Backend | None = None, *, preload: Sequence[str] = ()) -> Backend:
-    """Turn a ``workers`` argument into an execution backend.
+def make_backend(
+    workers: int | Backend | None = None, *, preload: Sequence[str] = (), client: Any = None
+) -> Backend:
+    """Turn a ``workers`` argument (or a Dask client) into an execution backend.
 
     Parameters
     ----------
@@ -956,7 +1208,10 @@ def make_backend(workers: int | Backend | None = None, *, preload: Sequence[str]
         callers can bring their own (and keep its workers across calls).
     preload : sequence of str, optional
         Modules the workers' fork server imports once; see :class:`ProcessBackend`.
-        Ignored unless a new process backend is made.
+        Ignored unless a new process or Dask backend is made.
+    client : distributed.Client or str, optional
+        A Dask client or scheduler address: the items run on that cluster
+        (:class:`DaskBackend`) and ``workers`` must be None.
 
     Returns
     -------
@@ -977,6 +1232,13 @@ def make_backend(workers: int | Backend | None = None, *, preload: Sequence[str]
     ...
     forecastaudit.run.ExecutionError: workers must be a whole number >= 1, ...
     """
+    if client is not None:
+        if workers is not None:
+            raise ExecutionError(
+                "Give either workers (local processes) or client (a Dask cluster), not both; "
+                "the cluster's workers set how many items run at once."
+            )
+        return DaskBackend(client, preload=preload)
     if isinstance(workers, Backend):
         return workers
     if workers is None:
