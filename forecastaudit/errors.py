@@ -38,3 +38,7 @@ class EstimatorError(ForecastAuditError, ValueError):
 
 class RecordError(ForecastAuditError, ValueError):
     """An audit record is malformed, tampered with or of an unsupported schema version."""
+
+
+class PanelError(ForecastAuditError, ValueError):
+    """A panel of series (its table, ids, specifications or store) cannot be audited as given."""
