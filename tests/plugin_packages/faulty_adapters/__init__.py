@@ -4,18 +4,26 @@ Not installed: ``tests/test_faulty_adapters.py`` puts ``tests/plugin_packages`` 
 ``sys.path``, where ``faulty_adapters-0.1.dist-info`` makes :mod:`importlib.metadata` find
 the distribution ``faulty-adapters`` and its ``forecastaudit.adapters`` entry points. The
 fourth entry point names a module that does not exist, to show that a broken entry point
-is reported without stopping the others.
+is reported without stopping the others. ``faulty-marker`` (used by
+``tests/test_panel.py``) is statsmodels SARIMAX except on series whose first value is a
+marker: 4242 makes its fit sleep for an hour, 6666 ends the worker process.
 """
 
 from __future__ import annotations
 
 import math
+import os
 import time
 
 from forecastaudit.adapters.protocol import Capabilities, EstimatorAdapter, FitOutput, FitRequest
+from forecastaudit.adapters.statsmodels_sarimax import StatsmodelsSarimax
 from forecastaudit.conventions import coefficient_names
 
-__all__ = ["HangingAdapter", "NanAdapter", "RaisingAdapter"]
+__all__ = ["HangingAdapter", "MarkerAdapter", "NanAdapter", "RaisingAdapter"]
+
+#: First values that make :class:`MarkerAdapter` hang or end its process.
+HANG_MARKER = 4242.0
+CRASH_MARKER = 6666.0
 
 
 class _Faulty(EstimatorAdapter):
@@ -75,3 +83,29 @@ class NanAdapter(_Faulty):
             optimizer={"method": "none", "message": "converged"},
             options={"faulty-adapters": {"method": "none"}},
         )
+
+
+def _first_value_is(y: object, marker: float) -> bool:
+    """Whether the first value, as given or after the log transform, is ``marker``."""
+    first = float(y[0])  # type: ignore[index]
+    return math.isclose(first, marker) or math.isclose(first, math.log(marker), rel_tol=1e-12)
+
+
+class MarkerAdapter(StatsmodelsSarimax):
+    """statsmodels SARIMAX, except on series that start with a marker value.
+
+    A series whose first observation is 4242 makes the fit sleep for an hour; one that
+    starts with 6666 ends the whole process at once (``os._exit``), as a crash in compiled
+    code would. Any other series is fitted exactly as ``statsmodels-sarimax`` fits it.
+    """
+
+    key = "faulty-marker"
+    description = "statsmodels SARIMAX that hangs or crashes on marked series"
+
+    def _fit(self, request: FitRequest) -> FitOutput:
+        if _first_value_is(request.y, HANG_MARKER):
+            time.sleep(3600)
+            raise RuntimeError("woke up after an hour")
+        if _first_value_is(request.y, CRASH_MARKER):
+            os._exit(3)
+        return super()._fit(request)
