@@ -46,6 +46,12 @@ SMALL_LINES = [
     "H013 red-cells",
 ]
 SMALL_LINES.remove("H003 cryoprecipitate")
+#: Ordinary (not planted) lines that fail as well. Measured with statsmodels' default fit
+#: on this 2-core x86_64 machine: on "H032 red-cells" statsmodels-sarimax stops 0.065
+#: log-likelihood units short, its forecasts are only 0.058 SE off but its 95% intervals
+#: are 18% wider than at the optimum, which is material. The gap is small, so another
+#: machine may stop elsewhere: allowed, never required, and always after the planted lines.
+ORDINARY_FAILING = {"H032 red-cells"}
 EXACT_COLUMNS = ["verdict", "cause", "cause_estimator", "status"]
 CLOSE_COLUMNS = ["production_gap", "production_forecast_se"]
 
@@ -103,9 +109,12 @@ def test_full_panel_puts_the_planted_lines_first(full_panel: Any) -> None:
     assert top["production_material"].astype(bool).all()
     assert (top["rank"] == 0).all()
     others = summary.iloc[len(planted):]
-    assert not (others["verdict"] == "fail").any(), others[others["verdict"] == "fail"]
-    assert result.failing == list(top.index)
-    assert result.counts["fail"] == len(planted)
+    extra = others[others["verdict"] == "fail"]
+    assert set(extra.index) <= ORDINARY_FAILING, extra
+    assert (extra["cause"] == "stopped-short").all() and (
+        extra["cause_estimator"] == PRODUCTION).all()  # fmt: skip
+    assert result.failing == [*top.index, *extra.index]
+    assert result.counts["fail"] == len(planted) + len(extra)
     assert result.resumed == 0 and result.backend == "processes" and result.workers == 2
 
 
@@ -119,7 +128,8 @@ def test_full_panel_first_cause_names_production_and_planted_ids(full_panel: Any
         assert line in first, first
     count = result.causes[0]
     assert (count.kind, count.production) == ("stopped-short", True)
-    assert set(count.material) == set(PANEL_PLANTED)
+    assert set(PANEL_PLANTED) <= set(count.material) <= set(PANEL_PLANTED) | ORDINARY_FAILING
+    assert set(count.material) == set(result.failing)
 
 
 @pytest.mark.slow
@@ -128,7 +138,8 @@ def test_full_panel_files(full_panel: Any) -> None:
     for name in ("panel-report.html", "panel-report.md", "panel-summary.csv", STORE_NAME):
         assert (folder / name).is_file() and (folder / name).stat().st_size > 0, name
     reports = result.summary["report"].dropna()
-    assert set(reports.index) == set(PANEL_PLANTED)
+    assert set(reports.index) == set(result.failing)
+    assert set(PANEL_PLANTED) <= set(reports.index)
     written = {p.relative_to(folder).as_posix() for p in (folder / "series").glob("*.html")}
     assert written == set(reports)
     # Header and one line per series.
