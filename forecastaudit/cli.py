@@ -46,19 +46,37 @@ def _parse_levels(text: str) -> tuple[float, ...]:
         ) from None
 
 
-def read_series(path: str | Path, column: str | None, date_column: str | None = None) -> pd.Series:
-    """Read one column of a CSV or Parquet file as a Series indexed by its date column.
-
-    Without ``date_column`` the first column is used as dates when it parses as dates.
-    """
+def read_table(path: str | Path) -> pd.DataFrame:
+    """Read a CSV or Parquet file (by its suffix: .parquet or .pq, else CSV)."""
     path = Path(path)
     if not path.exists():
         raise SeriesError(f"No such file: {path}.")
     suffix = path.suffix.lower()
     try:
-        frame = pd.read_parquet(path) if suffix in {".parquet", ".pq"} else pd.read_csv(path)
+        return pd.read_parquet(path) if suffix in {".parquet", ".pq"} else pd.read_csv(path)
     except Exception as exc:
         raise SeriesError(f"Cannot read {path}: {type(exc).__name__}: {exc}") from exc
+
+
+def read_series(path: str | Path, column: str | None, date_column: str | None = None) -> pd.Series:
+    """Read one column of a CSV or Parquet file as a Series indexed by its date column.
+
+    Without ``date_column`` the first column is used as dates when it parses as dates. A
+    long-format file of many series (dates that repeat, or an id column first) is refused
+    with a pointer to the ``panel`` command.
+    """
+    from forecastaudit.panel.data import looks_like_panel
+
+    path = Path(path)
+    frame = read_table(path)
+    if date_column is None or date_column in frame.columns:
+        why = looks_like_panel(frame, date_column)
+        if why is not None:
+            raise SeriesError(
+                f"{path} looks like a panel of many series in long format: {why}. Audit it "
+                "with 'forecastaudit panel FILE --model ... --id-column COLUMN', or give a "
+                "file of one series (one row per period)."
+            )
     if column is None:
         numeric = [c for c in frame.columns if pd.api.types.is_numeric_dtype(frame[c])]
         if len(numeric) != 1:
@@ -150,6 +168,47 @@ def _cmd_audit(args: argparse.Namespace) -> int:
         production=args.production,
     )
     return _finish(report, Path(args.out) if args.out else None)
+
+
+def _cmd_panel(args: argparse.Namespace) -> int:
+    from forecastaudit.panel import audit_panel
+    from forecastaudit.spec import ModelSpec
+
+    spec = ModelSpec.parse(args.model)
+    out = Path(args.out)
+    if out.exists() and not out.is_dir():
+        raise ForecastAuditError(f"--out {out} is a file; give a folder for the panel's outputs.")
+    frame = read_table(args.data)
+    estimators: Any = args.estimators
+    if estimators not in (None, "independent", "all"):
+        estimators = estimators.split(",")
+    result = audit_panel(
+        frame,
+        spec,
+        estimators=estimators or "independent",
+        tolerances=_parse_tolerances(args.tolerance),
+        id_column=args.id_column,
+        time_column=args.date_column,
+        value_column=args.column,
+        period=args.period,
+        horizon=args.horizon,
+        levels=_parse_levels(args.levels),
+        holdout=args.holdout,
+        origins=args.origins,
+        production=args.production,
+        workers=args.workers,
+        client=args.scheduler,
+        time_limit=args.time_limit,
+        out=out,
+        fresh=args.fresh,
+        progress=not args.quiet,
+    )
+    print(result)
+    print(
+        f"\nwrote {out} (panel-report.html, panel-report.md, panel-summary.csv, "
+        f"panel-store.jsonl, series/)"
+    )
+    return EXIT_PASS if result.passed else EXIT_FINDINGS
 
 
 def _cmd_compare_models(args: argparse.Namespace) -> int:
@@ -290,6 +349,52 @@ def build_parser() -> argparse.ArgumentParser:
     run.add_argument("--out", help="output folder for the record (default: print only)")
     run.add_argument("--quiet", action="store_true", help="no progress bar")
     run.set_defaults(func=_cmd_audit)
+
+    panel = _add_command(
+        sub,
+        "panel",
+        "audit every series of a long-format file (one row per series and period)",
+        passed="every series passed",
+    )
+    panel.add_argument("data", help="CSV or Parquet file, one row per series and period")
+    panel.add_argument("--id-column", required=True, help="column that identifies each series")
+    panel.add_argument("--column", help="column of values (default: the only numeric one left)")
+    panel.add_argument("--date-column", help="column of dates (default: the first of dates)")
+    panel.add_argument("--model", required=True, help="model in text form, used for every series")
+    _add_period_and_estimators(
+        panel,
+        "'independent' (default: one wrapper per engine), 'all', or comma-separated keys",
+    )
+    panel.add_argument(
+        "--tolerance", action="append", metavar="NAME=VALUE", help="override a tolerance"
+    )
+    panel.add_argument(
+        "--production",
+        default="statsmodels-sarimax",
+        help="the estimator the team ships (default: %(default)s)",
+    )
+    panel.add_argument("--horizon", type=int, help="steps to forecast (default: the period)")
+    panel.add_argument("--levels", default="80,95", help="interval levels (default: %(default)s)")
+    panel.add_argument("--holdout", type=int, help="hold out this many final observations")
+    panel.add_argument("--origins", type=int, default=1, help="holdout windows (default: 1)")
+    panel.add_argument(
+        "--workers", type=int, help="local worker processes (default: one per core; 1: inline)"
+    )
+    panel.add_argument(
+        "--scheduler", help="address of a Dask scheduler to run on (e.g. tcp://host:8786)"
+    )
+    panel.add_argument(
+        "--time-limit",
+        type=float,
+        default=300.0,
+        help="seconds one series may take (default: %(default)s)",
+    )
+    panel.add_argument("--out", required=True, help="output folder; a second run with it resumes")
+    panel.add_argument(
+        "--fresh", action="store_true", help="start afresh, ignoring an earlier run's results"
+    )
+    panel.add_argument("--quiet", action="store_true", help="no progress bar")
+    panel.set_defaults(func=_cmd_panel)
 
     drift = _add_command(
         sub,
