@@ -193,9 +193,9 @@ def _from_frame(
     if frame.columns.has_duplicates:
         dup = frame.columns[frame.columns.duplicated()][0]
         raise PanelError(f"The table has two columns named {dup!r}; rename one.")
-    ids, times, values = _pick_columns(frame, id_column, time_column, value_column)
     if frame.empty:
         raise PanelError("The panel table has no rows; pass the observations to audit.")
+    ids, times, values = _pick_columns(frame, id_column, time_column, value_column)
     if frame[ids].isna().any():
         row = int(np.flatnonzero(frame[ids].isna().to_numpy())[0])
         raise PanelError(f"The id column {ids!r} is empty in row {row}; every row needs its id.")
