@@ -287,6 +287,35 @@ def _add_period_and_estimators(parser: argparse.ArgumentParser, estimators_help:
     parser.add_argument("--estimators", help=estimators_help)
 
 
+def _add_audit_options(parser: argparse.ArgumentParser) -> None:
+    """The options of one audit that ``audit`` and ``panel`` share: tolerances, the
+    production estimator, the forecast horizon and levels, and the holdout."""
+    parser.add_argument(
+        "--tolerance",
+        action="append",
+        metavar="NAME=VALUE",
+        help="override a tolerance, e.g. loglike_atol=0.05 (repeatable)",
+    )
+    parser.add_argument(
+        "--production",
+        default="statsmodels-sarimax",
+        help="the estimator the team ships; the verdict is about it (default: %(default)s)",
+    )
+    parser.add_argument("--horizon", type=int, help="steps to forecast (default: the period)")
+    parser.add_argument(
+        "--levels", default="80,95", help="interval levels in percent (default: %(default)s)"
+    )
+    parser.add_argument(
+        "--holdout", type=int, help="hold out this many final observations and score forecasts"
+    )
+    parser.add_argument(
+        "--origins",
+        type=int,
+        default=1,
+        help="number of consecutive holdout windows (rolling origin; default: %(default)s)",
+    )
+
+
 def build_parser() -> argparse.ArgumentParser:
     """The argument parser (exposed for documentation and tests)."""
     parser = argparse.ArgumentParser(
@@ -317,30 +346,7 @@ def build_parser() -> argparse.ArgumentParser:
     _add_period_and_estimators(
         run, "comma-separated estimator keys (default: all; see 'estimators')"
     )
-    run.add_argument(
-        "--tolerance",
-        action="append",
-        metavar="NAME=VALUE",
-        help="override a tolerance, e.g. loglike_atol=0.05 (repeatable)",
-    )
-    run.add_argument(
-        "--production",
-        default="statsmodels-sarimax",
-        help="the estimator the team ships; the verdict is about it (default: %(default)s)",
-    )
-    run.add_argument("--horizon", type=int, help="steps to forecast (default: the period)")
-    run.add_argument(
-        "--levels", default="80,95", help="interval levels in percent (default: %(default)s)"
-    )
-    run.add_argument(
-        "--holdout", type=int, help="hold out this many final observations and score forecasts"
-    )
-    run.add_argument(
-        "--origins",
-        type=int,
-        default=1,
-        help="number of consecutive holdout windows (rolling origin; default: %(default)s)",
-    )
+    _add_audit_options(run)
     run.add_argument(
         "--order-search",
         action="store_true",
@@ -365,18 +371,7 @@ def build_parser() -> argparse.ArgumentParser:
         panel,
         "'independent' (default: one wrapper per engine), 'all', or comma-separated keys",
     )
-    panel.add_argument(
-        "--tolerance", action="append", metavar="NAME=VALUE", help="override a tolerance"
-    )
-    panel.add_argument(
-        "--production",
-        default="statsmodels-sarimax",
-        help="the estimator the team ships (default: %(default)s)",
-    )
-    panel.add_argument("--horizon", type=int, help="steps to forecast (default: the period)")
-    panel.add_argument("--levels", default="80,95", help="interval levels (default: %(default)s)")
-    panel.add_argument("--holdout", type=int, help="hold out this many final observations")
-    panel.add_argument("--origins", type=int, default=1, help="holdout windows (default: 1)")
+    _add_audit_options(panel)
     panel.add_argument(
         "--workers", type=int, help="local worker processes (default: one per core; 1: inline)"
     )

@@ -24,12 +24,10 @@ from forecastaudit.spec import ModelSpec
 __all__ = [
     "DEMO_FILE",
     "DEMO_SPEC",
-    "PANEL_FILE",
     "PANEL_PLANTED",
     "generate_demo_panel",
     "generate_demo_series",
     "load_demo",
-    "load_demo_panel",
 ]
 
 DEMO_FILE = "ashgrove_red_cell_units.csv"
@@ -74,7 +72,6 @@ def load_demo() -> pd.Series:
 
 # -- the demo panel ---------------------------------------------------------------------------
 
-PANEL_FILE = "ashgrove_hospital_issues.csv"
 PANEL_SEED = 20112
 PANEL_ID = "supply_line"
 PANEL_PRODUCTS: dict[str, float] = {
@@ -173,9 +170,3 @@ def generate_demo_panel(hospitals: int = 60, seed: int = PANEL_SEED) -> pd.DataF
                               "product": product, "units": units.astype(int)})
             )  # fmt: skip
     return pd.concat(frames, ignore_index=True)
-
-
-def load_demo_panel() -> pd.DataFrame:
-    """The shipped demo panel (see :func:`generate_demo_panel`), as a long table."""
-    with resources.files("forecastaudit.data").joinpath(PANEL_FILE).open("r") as handle:
-        return pd.read_csv(handle, dtype={"month": str})

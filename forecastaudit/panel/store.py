@@ -202,12 +202,12 @@ class PanelStore(MemoryStore):
 
     def append(self, entry: dict[str, Any]) -> None:
         """Write one series' outcome as a line, flushed to disk."""
-        text = _line(entry)
+        plain = to_plain(entry)
+        text = json.dumps(plain, separators=(",", ":"), allow_nan=False) + "\n"
         position = self._handle.tell()
         self._handle.write(text)
         self._handle.flush()
         os.fsync(self._handle.fileno())
-        plain = json.loads(text)
         self._light[plain["id"]] = {k: plain.get(k) for k in _LIGHT}
         self._offsets[plain["id"]] = position
 
