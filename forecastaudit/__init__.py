@@ -22,14 +22,26 @@ _PUBLIC: dict[str, str] = {
     "AuditResult": "forecastaudit.result",
     "AuditReport": "forecastaudit.result",
     "audit": "forecastaudit.pipeline",
+    "audit_panel": "forecastaudit.panel",
+    "PanelResult": "forecastaudit.panel",
+    "PanelDrift": "forecastaudit.record.panel_baseline",
+    "compare_panel_to_baseline": "forecastaudit.record.panel_baseline",
+    "generate_demo_panel": "forecastaudit.demo",
+    "PanelError": "forecastaudit.errors",
     "DEMO_SPEC": "forecastaudit.demo",
     "load_demo": "forecastaudit.demo",
+    "RecordChanges": "forecastaudit.record.changes",
     "RecordDrift": "forecastaudit.record.changes",
     "compare_records": "forecastaudit.record.changes",
     "load_record": "forecastaudit.record.document",
+    "add_signoff": "forecastaudit.record.signing",
+    "generate_key_pair": "forecastaudit.record.signing",
+    "sign_record": "forecastaudit.record.signing",
+    "verify_signatures": "forecastaudit.record.signing",
     "EstimatorError": "forecastaudit.errors",
     "ForecastAuditError": "forecastaudit.errors",
     "RecordError": "forecastaudit.errors",
+    "RegressorError": "forecastaudit.errors",
     "SeriesError": "forecastaudit.errors",
     "SpecError": "forecastaudit.errors",
     "ToleranceError": "forecastaudit.errors",
@@ -43,7 +55,14 @@ _PUBLIC: dict[str, str] = {
     "compare_models": "forecastaudit.model_choice",
     "ModelSpec": "forecastaudit.spec",
     "Tolerances": "forecastaudit.diagnosis.tolerances",
+    "Limits": "forecastaudit.validation",
+    "current_limits": "forecastaudit.validation",
+    "limits_changed": "forecastaudit.validation",
+    "set_limits": "forecastaudit.validation",
 }
+
+#: Old names kept for one release; their modules warn when they are used.
+_DEPRECATED = frozenset({"RecordDrift"})
 
 __all__ = [
     "CAUTION",
@@ -56,22 +75,38 @@ __all__ = [
     "Finding",
     "Forecast",
     "ForecastAuditError",
+    "Limits",
     "ModelSpec",
     "OrderSearchAudit",
+    "PanelDrift",
+    "PanelError",
+    "PanelResult",
+    "RecordChanges",
     "RecordDrift",
     "RecordError",
+    "RegressorError",
     "SeriesError",
     "SpecError",
     "ToleranceError",
     "Tolerances",
     "__version__",
+    "add_signoff",
     "audit",
     "audit_order_search",
+    "audit_panel",
     "available_estimators",
     "compare_models",
+    "compare_panel_to_baseline",
     "compare_records",
+    "current_limits",
+    "generate_demo_panel",
+    "generate_key_pair",
+    "limits_changed",
     "load_demo",
     "load_record",
+    "set_limits",
+    "sign_record",
+    "verify_signatures",
 ]
 
 
@@ -80,7 +115,8 @@ def __getattr__(name: str) -> Any:
     if module is None:
         raise AttributeError(f"module 'forecastaudit' has no attribute {name!r}")
     value = getattr(importlib.import_module(module), name)
-    globals()[name] = value
+    if name not in _DEPRECATED:  # a deprecated name warns on every use
+        globals()[name] = value
     return value
 
 
@@ -90,22 +126,32 @@ def __dir__() -> list[str]:
 
 if TYPE_CHECKING:
     from forecastaudit.adapters.registry import available_estimators
-    from forecastaudit.demo import DEMO_SPEC, load_demo
+    from forecastaudit.demo import DEMO_SPEC, generate_demo_panel, load_demo
     from forecastaudit.diagnosis.findings import KINDS, Finding
     from forecastaudit.diagnosis.tolerances import Tolerances
     from forecastaudit.errors import (
         EstimatorError,
         ForecastAuditError,
+        PanelError,
         RecordError,
+        RegressorError,
         SeriesError,
         SpecError,
         ToleranceError,
     )
     from forecastaudit.estimate import Estimate, Forecast
     from forecastaudit.model_choice import compare_models
+    from forecastaudit.panel import PanelResult, audit_panel
     from forecastaudit.pipeline import audit
-    from forecastaudit.record.changes import RecordDrift, compare_records
+    from forecastaudit.record.changes import RecordChanges, compare_records
     from forecastaudit.record.document import load_record
+    from forecastaudit.record.panel_baseline import PanelDrift, compare_panel_to_baseline
+    from forecastaudit.record.signing import (
+        add_signoff,
+        generate_key_pair,
+        sign_record,
+        verify_signatures,
+    )
     from forecastaudit.result import CAUTION, AuditReport, AuditResult
     from forecastaudit.search.order_search import OrderSearchAudit, audit_order_search
     from forecastaudit.spec import ModelSpec

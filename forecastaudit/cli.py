@@ -1,24 +1,36 @@
 """Command line: ``forecastaudit <command> ...``.
 
-Exit codes: 0 the audit passed; 1 the audit ran and at least one finding is beyond
-tolerance (severity ``fail``); 2 a usage or input error (nothing was written).
+Exit codes (the same for every command; each command's ``--help`` says what 0 and 1 mean
+for it):
+
+* 0 the audit passed;
+* 1 the audit ran and at least one finding is beyond tolerance (severity ``fail``);
+* 2 a usage or input error, found before any work where it can be (bad options, data, an
+  output path that cannot be written, a record that fails its checks); nothing was written;
+* 3 an internal error (a bug in forecastaudit or in a library it calls); nothing was
+  written. A short message is printed; ``--debug`` shows the traceback;
+* 4 no estimator produced an estimate (every one failed, was unsupported or unavailable),
+  so there was nothing to audit; nothing was written.
 """
 
 from __future__ import annotations
 
 import argparse
 import sys
+import traceback
 from collections.abc import Sequence
 from pathlib import Path
 from typing import Any
 
-import pandas as pd
-
-from forecastaudit.errors import ForecastAuditError, SeriesError
+from forecastaudit import reading
+from forecastaudit.errors import ForecastAuditError, SpecError
+from forecastaudit.files import check_output_file, check_output_folder
 
 EXIT_PASS = 0
 EXIT_FINDINGS = 1
 EXIT_USAGE = 2
+EXIT_INTERNAL = 3
+EXIT_NO_ESTIMATE = 4
 
 RECORD_NAME = "forecastaudit-record.json"
 HTML_NAME = "forecastaudit-report.html"
@@ -28,6 +40,9 @@ _EPILOG = """exit codes:
   0  the audit passed (no finding beyond tolerance); 'demo' also when it ran at all
   1  the audit ran; at least one finding is beyond tolerance
   2  usage or input error; nothing was written
+  3  internal error (a bug); nothing was written; 'forecastaudit --debug ...' shows
+     the traceback
+  4  no estimator produced an estimate, so there was nothing to audit; nothing written
 """
 
 
@@ -46,86 +61,84 @@ def _parse_levels(text: str) -> tuple[float, ...]:
         ) from None
 
 
-def read_table(path: str | Path) -> pd.DataFrame:
-    """Read a CSV or Parquet file (by its suffix: .parquet or .pq, else CSV)."""
-    path = Path(path)
-    if not path.exists():
-        raise SeriesError(f"No such file: {path}.")
-    suffix = path.suffix.lower()
-    try:
-        return pd.read_parquet(path) if suffix in {".parquet", ".pq"} else pd.read_csv(path)
-    except Exception as exc:
-        raise SeriesError(f"Cannot read {path}: {type(exc).__name__}: {exc}") from exc
+# The readers live in forecastaudit.reading; they are re-exported here for callers of the
+# command line's own helpers.
+read_table = reading.read_table
+read_series = reading.read_series
+read_regressors = reading.read_regressors
 
 
-def read_series(path: str | Path, column: str | None, date_column: str | None = None) -> pd.Series:
-    """Read one column of a CSV or Parquet file as a Series indexed by its date column.
+def _regressor_columns(spec: Any, option: str | None) -> tuple[str, ...]:
+    """The regressor columns: from ``--regressors`` and the model's ``+x(...)`` marker."""
+    given = tuple(c.strip() for c in option.split(",") if c.strip()) if option else ()
+    if given and spec.regressors and given != spec.regressors:
+        raise SpecError(
+            f"--regressors {','.join(given)} differs from the model's +x("
+            f"{','.join(spec.regressors)}); give the regressors once, in either place."
+        )
+    return given or spec.regressors
 
-    Without ``date_column`` the first column is used as dates when it parses as dates. A
-    long-format file of many series (dates that repeat, or an id column first) is refused
-    with a pointer to the ``panel`` command.
-    """
-    from forecastaudit.panel.data import looks_like_panel
 
-    path = Path(path)
-    frame = read_table(path)
-    if date_column is None or date_column in frame.columns:
-        why = looks_like_panel(frame, date_column)
-        if why is not None:
-            raise SeriesError(
-                f"{path} looks like a panel of many series in long format: {why}. Audit it "
-                "with 'forecastaudit panel FILE --model ... --id-column COLUMN', or give a "
-                "file of one series (one row per period)."
-            )
-    if column is None:
-        numeric = [c for c in frame.columns if pd.api.types.is_numeric_dtype(frame[c])]
-        if len(numeric) != 1:
-            raise SeriesError(
-                f"{path} has columns {list(frame.columns)}; choose one with --column."
-            )
-        column = numeric[0]
-    if column not in frame.columns:
-        raise SeriesError(f"{path} has no column {column!r}; its columns: {list(frame.columns)}.")
-    dates = date_column
-    if dates is None and frame.columns[0] != column:
-        candidate = frame.columns[0]
-        parsed = pd.to_datetime(frame[candidate], errors="coerce")
-        if parsed.notna().all():
-            dates = candidate
-    series = frame[column].copy()
-    if dates is not None:
-        if dates not in frame.columns:
-            raise SeriesError(f"{path} has no date column {dates!r}.")
-        parsed = pd.to_datetime(frame[dates], errors="coerce")
-        if parsed.isna().any():
-            bad = frame[dates][parsed.isna()].iloc[0]
-            raise SeriesError(f"Date column {dates!r} has a value that is not a date: {bad!r}.")
-        series.index = pd.DatetimeIndex(parsed, name=dates)
-        freq = pd.infer_freq(series.index) if len(series) >= 3 else None
-        if freq is not None:
-            series = series.asfreq(freq)
-    series.name = column
-    return series
+class NoEstimateError(ForecastAuditError):
+    """No chosen estimator produced an estimate: there is nothing to audit (exit 4)."""
 
 
 def _write_outputs(report: Any, out: Path) -> list[Path]:
-    from forecastaudit.files import write_text_atomic
+    from forecastaudit.files import write_set
 
-    # Render everything first, so a rendering error leaves no partial set of files.
+    # Render everything first, then write the set as one: a failure leaves nothing new.
     texts = {
         RECORD_NAME: report.to_json(),
         HTML_NAME: report.to_html(),
         MARKDOWN_NAME: report.to_markdown(),
     }
-    return [write_text_atomic(out / name, text) for name, text in texts.items()]
+    return write_set(out, texts)
 
 
-def _finish(report: object, out: Path | None) -> int:
+def file_sha256(path: str | Path) -> dict[str, Any]:
+    """Name, size and SHA-256 of an input file, for the record's provenance."""
+    import hashlib
+
+    digest = hashlib.sha256()
+    size = 0
+    try:
+        with open(path, "rb") as handle:
+            for block in iter(lambda: handle.read(1 << 20), b""):
+                digest.update(block)
+                size += len(block)
+    except OSError as exc:
+        raise ForecastAuditError(f"Cannot read the data file {path}: {exc}.") from None
+    return {"name": Path(path).name, "sha256": digest.hexdigest(), "bytes": size}
+
+
+def _invocation(args: argparse.Namespace, data: str | None) -> dict[str, Any]:
+    out: dict[str, Any] = {"command_line": ["forecastaudit", *args.argv]}
+    if data is not None:
+        out["input_file"] = file_sha256(data)
+    return out
+
+
+def _require_an_estimate(report: Any) -> None:
+    chosen = {k: e for k, e in report.estimates.items() if k != "reference"}
+    if chosen and not any(e.status == "ok" for e in chosen.values()):
+        reasons = "; ".join(
+            f"{key}: {e.status}" + (f" ({str(e.reason)[:200]})" if e.reason else "")
+            for key, e in chosen.items()
+        )
+        raise NoEstimateError(
+            f"No estimator produced an estimate, so there is nothing to audit ({reasons}). "
+            "Check that the estimators' libraries are installed ('forecastaudit estimators') "
+            "and that the model suits the data; nothing was written."
+        )
+
+
+def _finish(report: Any, out: Path | None) -> int:
+    _require_an_estimate(report)
     print(report)
     if out is not None:
         for path in _write_outputs(report, out):
             print(f"wrote {path}")
-    return EXIT_PASS if report.passed else EXIT_FINDINGS  # type: ignore[attr-defined]
+    return EXIT_PASS if report.passed else EXIT_FINDINGS
 
 
 def _demo_exit(code: int) -> int:
@@ -137,12 +150,14 @@ def _cmd_demo(args: argparse.Namespace) -> int:
     from forecastaudit.demo import DEMO_SPEC, load_demo
     from forecastaudit.pipeline import audit
 
+    check_output_folder(args.out)
     series = load_demo()
     print(
         "Demo: monthly red-cell units issued by the (fictional) Ashgrove Regional Blood "
         f"Service, {series.index[0]} to {series.index[-1]}; model {DEMO_SPEC}.\n"
     )
     report = audit(series, DEMO_SPEC, holdout=12, origins=2, progress=not args.quiet)
+    report.invocation = _invocation(args, None)
     return _demo_exit(_finish(report, Path(args.out)))
 
 
@@ -150,8 +165,25 @@ def _cmd_audit(args: argparse.Namespace) -> int:
     from forecastaudit.pipeline import audit
     from forecastaudit.spec import ModelSpec
 
+    if args.out:
+        check_output_folder(args.out)
     spec = ModelSpec.parse(args.model)  # a bad model text is reported before the data is read
-    series = read_series(args.data, args.column, args.date_column)
+    invocation = _invocation(args, args.data)  # hashed before reading: the bytes audited
+    columns = _regressor_columns(spec, args.regressors)
+    if columns and not spec.regressors:
+        spec = ModelSpec(
+            order=spec.order,
+            seasonal=spec.seasonal,
+            period=spec.period,
+            mean=spec.mean,
+            transform=spec.transform,
+            regressors=columns,
+        )
+    if args.future and not columns:
+        raise SpecError("--future gives future regressor values, but no --regressors are named.")
+    series = read_series(args.data, args.column, args.date_column, exclude=columns)
+    regressors = read_regressors(args.data, columns, args.date_column) if columns else None
+    future = read_regressors(args.future, columns) if args.future and columns else None
     estimators = args.estimators.split(",") if args.estimators else None
     report = audit(
         series,
@@ -166,8 +198,58 @@ def _cmd_audit(args: argparse.Namespace) -> int:
         order_search=args.order_search,
         progress=not args.quiet,
         production=args.production,
+        imported=list(args.imports or []),
+        regressors=regressors,
+        future_regressors=future,
+        environments=_parse_environments(args.environments),
     )
+    report.invocation = invocation
     return _finish(report, Path(args.out) if args.out else None)
+
+
+def _parse_environments(items: Sequence[str] | None) -> dict[str, Any] | None:
+    """``--environment NAME`` (every estimator that can run there) or ``NAME=KEY,KEY``."""
+    if not items:
+        return None
+    chosen: dict[str, Any] = {}
+    for item in items:
+        name, _, keys = item.partition("=")
+        if not name.strip():
+            raise ForecastAuditError(f"--environment expects NAME or NAME=KEY[,KEY], got {item!r}.")
+        chosen[name.strip()] = [k.strip() for k in keys.split(",") if k.strip()] or None
+    return chosen
+
+
+def _cmd_environment_create(args: argparse.Namespace) -> int:
+    from forecastaudit.environments import create_environment
+
+    print(f"Creating the environment {args.name} with {' '.join(args.requirements)} ...")
+    info = create_environment(
+        args.name, list(args.requirements), folder=args.folder, replace=args.replace
+    )
+    print(f"created {info.path} (Python {info.python})")
+    for name, version in sorted(info.installed.items()):
+        print(f"  {name} {version}")
+    return EXIT_PASS
+
+
+def _cmd_environment_list(args: argparse.Namespace) -> int:
+    from forecastaudit.adapters.other_environment import SUPPORTED
+    from forecastaudit.environments import environments_folder, list_environments
+
+    found = list_environments(args.folder)
+    print(f"Environments in {environments_folder(args.folder)}: {len(found) or 'none'}")
+    for info in found:
+        runs = [
+            f"{key} ({package} {info.version_of(package)})"
+            for key, package in SUPPORTED.items()
+            if info.version_of(package)
+        ]
+        print(
+            f"{info.name:24} Python {info.python:8} created {info.created}; "
+            f"runs {', '.join(runs) or 'nothing this release can run'}"
+        )
+    return EXIT_PASS
 
 
 def _cmd_panel(args: argparse.Namespace) -> int:
@@ -175,9 +257,7 @@ def _cmd_panel(args: argparse.Namespace) -> int:
     from forecastaudit.spec import ModelSpec
 
     spec = ModelSpec.parse(args.model)
-    out = Path(args.out)
-    if out.exists() and not out.is_dir():
-        raise ForecastAuditError(f"--out {out} is a file; give a folder for the panel's outputs.")
+    out = check_output_folder(args.out)
     frame = read_table(args.data)
     estimators: Any = args.estimators
     if estimators not in (None, "independent", "all"):
@@ -217,6 +297,8 @@ def _cmd_compare_models(args: argparse.Namespace) -> int:
     from forecastaudit.record.document import dumps
     from forecastaudit.spec import ModelSpec
 
+    if args.out:
+        check_output_file(args.out)
     specs = [ModelSpec.parse(text) for text in args.model]
     if len(specs) < 2:
         raise ForecastAuditError("compare-models needs at least two --model options.")
@@ -232,20 +314,120 @@ def _cmd_compare_models(args: argparse.Namespace) -> int:
     )
     print(result)
     if args.out:
-        print(f"wrote {write_text_atomic(args.out, dumps(result.to_dict()))}")
+        # The JSON and, beside it, the HTML and Markdown reports (same name, other suffixes);
+        # all three are rendered before any is written.
+        target = Path(args.out)
+        texts = {
+            target: dumps(result.to_dict()),
+            target.with_suffix(".html"): result.to_html(),
+            target.with_suffix(".md"): result.to_markdown(),
+        }
+        for path, text in texts.items():
+            print(f"wrote {write_text_atomic(path, text)}")
     return EXIT_PASS if result.stable else EXIT_FINDINGS
 
 
-def _cmd_drift(args: argparse.Namespace) -> int:
+def _cmd_changes(args: argparse.Namespace) -> int:
     from forecastaudit.files import write_text_atomic
     from forecastaudit.record.changes import compare_records
     from forecastaudit.record.document import dumps
 
-    drift = compare_records(args.old, args.new)
-    print(drift)
-    if args.out:
-        print(f"wrote {write_text_atomic(args.out, dumps(drift.to_dict()))}")
-    return EXIT_PASS if drift.passed else EXIT_FINDINGS
+    if args.command == "drift":
+        print(
+            "forecastaudit: warning: 'drift' is now called 'changes'; the old name goes in "
+            "the next release.",
+            file=sys.stderr,
+        )
+    targets = {"--out": args.out, "--html": args.html, "--markdown": args.markdown}
+    for option, path in targets.items():
+        if path:
+            check_output_file(path, option)
+    changes = compare_records(args.old, args.new, trusted_keys=args.trusted_key or None)
+    print(changes)
+    texts = {
+        args.out: dumps(changes.to_dict()) if args.out else None,
+        args.html: changes.to_html() if args.html else None,
+        args.markdown: changes.to_markdown() if args.markdown else None,
+    }  # everything rendered before anything is written
+    for path, text in texts.items():
+        if path and text is not None:
+            print(f"wrote {write_text_atomic(path, text)}")
+    return EXIT_PASS if changes.passed else EXIT_FINDINGS
+
+
+def _read_record(path: str) -> dict[str, Any]:
+    from forecastaudit.record.document import load_record
+
+    return load_record(path)
+
+
+def _cmd_new_key(args: argparse.Namespace) -> int:
+    from forecastaudit.record.signing import generate_key_pair
+
+    public = args.public or _public_name(args.private)
+    kid = generate_key_pair(args.private, public)
+    print(f"wrote private key {args.private} (readable by you only; keep it secret)")
+    print(f"wrote public key {public} (share it with whoever checks your signatures)")
+    print(f"key id {kid}")
+    return EXIT_PASS
+
+
+def _public_name(private: str) -> str:
+    path = Path(private)
+    stem = path.name[: -len(".pem")] if path.name.endswith(".pem") else path.name
+    return str(path.with_name(f"{stem}.pub.pem"))
+
+
+def _cmd_sign_off(args: argparse.Namespace) -> int:
+    from forecastaudit.files import write_text_atomic
+    from forecastaudit.record.document import dumps
+    from forecastaudit.record.signing import add_signoff
+
+    out = check_output_file(args.out or args.record)
+    record = add_signoff(
+        _read_record(args.record),
+        reviewer=args.reviewer,
+        decision=args.decision,
+        policy_reference=args.policy,
+        comments=args.comments or "",
+        date=args.date,
+    )
+    write_text_atomic(out, dumps(record))
+    print(f"wrote {out}: {args.decision} by {record['signoff']['reviewer']}")
+    return EXIT_PASS
+
+
+def _cmd_sign(args: argparse.Namespace) -> int:
+    from forecastaudit.files import write_text_atomic
+    from forecastaudit.record.document import dumps
+    from forecastaudit.record.signing import load_private_key, sign_record
+
+    out = check_output_file(args.out or args.record)
+    key = load_private_key(args.key)
+    record = sign_record(_read_record(args.record), key)
+    write_text_atomic(out, dumps(record))
+    print(f"wrote {out}: signed by key {record['signatures'][-1]['key_id']}")
+    return EXIT_PASS
+
+
+def _cmd_verify(args: argparse.Namespace) -> int:
+    from forecastaudit.record.document import load_record
+
+    record = load_record(args.record, trusted_keys=args.trusted_key)
+    from forecastaudit.record.signing import verify_signatures
+
+    signers = verify_signatures(record, args.trusted_key)
+    block = record.get("signoff")
+    print(
+        f"{args.record}: seal and signature valid; signed by trusted key(s) "
+        f"{', '.join(signers)}; verdict {record['verdict']}"
+        + (
+            f"; sign-off {block['decision']} by {block['reviewer']} on {block['date']}"
+            if block
+            else "; no sign-off block"
+        )
+    )
+    return EXIT_PASS
 
 
 def _cmd_estimators(args: argparse.Namespace) -> int:
@@ -255,9 +437,15 @@ def _cmd_estimators(args: argparse.Namespace) -> int:
         adapter = get_adapter(key)
         missing = adapter.availability()
         state = "available" if missing is None else f"unavailable: {missing}"
+        caps = adapter.capabilities
+        regression = (
+            f"regressors on the {caps.regression_form or 'levels'}"
+            if caps.regressors
+            else "no regressors"
+        )
         print(
             f"{key:22} {adapter.package} {adapter.version() or '-':10} "
-            f"engine {adapter.engine:24} {state}"
+            f"engine {adapter.engine:24} {regression:24} {state}"
         )
     return EXIT_PASS
 
@@ -328,6 +516,14 @@ def build_parser() -> argparse.ArgumentParser:
         epilog=_EPILOG,
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
+    from forecastaudit._version import __version__
+
+    parser.add_argument("--version", action="version", version=f"forecastaudit {__version__}")
+    parser.add_argument(
+        "--debug",
+        action="store_true",
+        help="on an internal error, show the full traceback (for a bug report)",
+    )
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
     sub.required = True
 
@@ -348,9 +544,43 @@ def build_parser() -> argparse.ArgumentParser:
     )
     _add_audit_options(run)
     run.add_argument(
+        "--regressors",
+        help=(
+            "comma-separated regressor columns of the same file (regression with ARIMA "
+            "errors); or name them in the model, e.g. 'ARIMA(1,0,1) +mean +x(price,promo)'"
+        ),
+    )
+    run.add_argument(
+        "--future",
+        help=(
+            "CSV or Parquet file of the regressors' values over the forecast periods (dates "
+            "first, one row per period, at least --horizon rows)"
+        ),
+    )
+    run.add_argument(
         "--order-search",
         action="store_true",
         help="also audit every installed automatic order search on this series (slow)",
+    )
+    run.add_argument(
+        "--import",
+        dest="imports",
+        action="append",
+        metavar="FILE",
+        help=(
+            "an estimate made by other software, as an import record (JSON, or the "
+            "name,value CSV form); audited beside the others (repeatable)"
+        ),
+    )
+    run.add_argument(
+        "--environment",
+        dest="environments",
+        action="append",
+        metavar="NAME[=KEY,...]",
+        help=(
+            "also run estimators inside another Python environment made by 'environment "
+            "create' (every one that can run there, or the keys given; repeatable)"
+        ),
     )
     run.add_argument("--out", help="output folder for the record (default: print only)")
     run.add_argument("--quiet", action="store_true", help="no progress bar")
@@ -391,16 +621,23 @@ def build_parser() -> argparse.ArgumentParser:
     panel.add_argument("--quiet", action="store_true", help="no progress bar")
     panel.set_defaults(func=_cmd_panel)
 
-    drift = _add_command(
-        sub,
-        "drift",
-        "compare two audit records (e.g. before and after a library upgrade)",
-        passed="nothing drifted beyond tolerance",
-    )
-    drift.add_argument("old", help="the signed-off record (JSON)")
-    drift.add_argument("new", help="the new record (JSON)")
-    drift.add_argument("--out", help="write the drift table as JSON to this file")
-    drift.set_defaults(func=_cmd_drift)
+    for name, summary in (
+        ("changes", "changes between two audit records (e.g. before and after an upgrade)"),
+        ("drift", "deprecated name of 'changes' (kept for one release)"),
+    ):
+        changes = _add_command(sub, name, summary, passed="nothing changed beyond tolerance")
+        changes.add_argument("old", help="the signed-off record (JSON)")
+        changes.add_argument("new", help="the new record (JSON)")
+        changes.add_argument("--out", help="write the changes as JSON to this file")
+        changes.add_argument("--html", help="write the changes as an HTML page to this file")
+        changes.add_argument("--markdown", help="write the changes as Markdown to this file")
+        changes.add_argument(
+            "--trusted-key",
+            action="append",
+            metavar="FILE",
+            help="a reviewer's public key; the old record must be signed by one (repeatable)",
+        )
+        changes.set_defaults(func=_cmd_changes)
 
     choose = _add_command(
         sub,
@@ -415,23 +652,137 @@ def build_parser() -> argparse.ArgumentParser:
     choose.add_argument("--holdout", type=int, required=True, help="steps held out per origin")
     choose.add_argument("--origins", type=int, default=1, help="holdout windows (default: 1)")
     _add_period_and_estimators(choose, "comma-separated estimator keys (default: all)")
-    choose.add_argument("--out", help="write the comparison as JSON to this file")
+    choose.add_argument(
+        "--out",
+        help="write the comparison as JSON to this file, with HTML and Markdown reports beside it",
+    )
     choose.set_defaults(func=_cmd_compare_models)
+
+    new_key = _add_command(
+        sub,
+        "new-key",
+        "create a reviewer's key pair for signing records (Ed25519, PEM files)",
+        passed="the key pair was written",
+    )
+    new_key.add_argument("private", help="file for the private key (created owner-only, 0600)")
+    new_key.add_argument(
+        "--public", help="file for the public key (default: PRIVATE with .pub.pem)"
+    )
+    new_key.set_defaults(func=_cmd_new_key)
+
+    sign_off = _add_command(
+        sub,
+        "sign-off",
+        "write a reviewer's decision into an (unsigned) audit record",
+        passed="the sign-off was written",
+    )
+    sign_off.add_argument("record", help="the audit record (JSON)")
+    sign_off.add_argument("--reviewer", required=True, help="who reviewed the audit")
+    sign_off.add_argument(
+        "--decision",
+        required=True,
+        choices=("approved", "approved-with-conditions", "rejected"),
+        help="the reviewer's decision",
+    )
+    sign_off.add_argument(
+        "--policy", required=True, help="the model-risk policy (and section) reviewed under"
+    )
+    sign_off.add_argument("--comments", help="conditions, reservations or notes")
+    sign_off.add_argument("--date", help="date of the decision, YYYY-MM-DD (default: today)")
+    sign_off.add_argument("--out", help="write to this file instead of updating the record")
+    sign_off.set_defaults(func=_cmd_sign_off)
+
+    sign = _add_command(
+        sub,
+        "sign",
+        "sign an audit record (and its sign-off) with a reviewer's private key",
+        passed="the record was signed",
+    )
+    sign.add_argument("record", help="the audit record (JSON)")
+    sign.add_argument("--key", required=True, help="the private key file from 'new-key'")
+    sign.add_argument("--out", help="write to this file instead of updating the record")
+    sign.set_defaults(func=_cmd_sign)
+
+    verify = _add_command(
+        sub,
+        "verify",
+        "check a record's seal and its signature by a trusted reviewer's key",
+        passed="the record is intact and signed by a trusted key",
+    )
+    verify.add_argument("record", help="the audit record (JSON)")
+    verify.add_argument(
+        "--trusted-key",
+        action="append",
+        required=True,
+        metavar="FILE",
+        help="a reviewer's public key file (repeatable)",
+    )
+    verify.set_defaults(func=_cmd_verify)
 
     est = sub.add_parser("estimators", help="list the estimators, their versions and engines")
     est.set_defaults(func=_cmd_estimators)
+
+    environment = sub.add_parser(
+        "environment", help="other Python environments, with other library versions"
+    )
+    env_sub = environment.add_subparsers(dest="environment_command", metavar="ACTION")
+    env_sub.required = True
+    create = env_sub.add_parser(
+        "create", help="build an environment with venv and pip and record what it installed"
+    )
+    create.add_argument("name", help="its name, e.g. statsmodels-0.14")
+    create.add_argument(
+        "requirements", nargs="+", help="what pip installs, e.g. statsmodels==0.14.1 'numpy<2'"
+    )
+    create.add_argument("--replace", action="store_true", help="replace one of that name")
+    create.add_argument(
+        "--folder", help="the environments folder (default: $FORECASTAUDIT_ENVIRONMENTS)"
+    )
+    create.set_defaults(func=_cmd_environment_create)
+    listing = env_sub.add_parser("list", help="list the environments and what they can run")
+    listing.add_argument(
+        "--folder", help="the environments folder (default: $FORECASTAUDIT_ENVIRONMENTS)"
+    )
+    listing.set_defaults(func=_cmd_environment_list)
     return parser
 
 
 def main(argv: Sequence[str] | None = None) -> int:
     """Entry point of the ``forecastaudit`` command; returns the exit code."""
     parser = build_parser()
+    # argparse exits itself: 0 after --help and --version, 2 (EXIT_USAGE) on bad usage.
     args = parser.parse_args(argv)
+    args.argv = [str(a) for a in (sys.argv[1:] if argv is None else argv)]
     try:
         return int(args.func(args))
+    except NoEstimateError as exc:
+        print(f"forecastaudit: error: {exc}", file=sys.stderr)
+        return EXIT_NO_ESTIMATE
     except ForecastAuditError as exc:
         print(f"forecastaudit: error: {exc}", file=sys.stderr)
         return EXIT_USAGE
+    except OSError as exc:  # the file system refused: a full disk, a permission changed
+        print(
+            f"forecastaudit: error: cannot read or write a file: {exc}. Nothing was written; "
+            "free space or fix the permission and re-run.",
+            file=sys.stderr,
+        )
+        return EXIT_USAGE
+    except KeyboardInterrupt:
+        print("forecastaudit: interrupted; nothing was written.", file=sys.stderr)
+        return 130
+    except Exception as exc:
+        if args.debug:
+            traceback.print_exc()
+        detail = str(exc).splitlines()[0][:300] if str(exc) else ""
+        print(
+            f"forecastaudit: internal error: {type(exc).__name__}"
+            + (f": {detail}" if detail else "")
+            + ". This is a bug, not a problem with your input; nothing was written. Re-run "
+            "with --debug for the traceback and report it.",
+            file=sys.stderr,
+        )
+        return EXIT_INTERNAL
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -11,6 +11,41 @@ AR terms carry a minus sign and MA terms a plus sign; seasonal factors multiply.
 the mean of the differenced series w. Everything downstream of the estimator adapters sees
 parameters only in this convention, as an ordered mapping from canonical name to value.
 
+Regressors: regression on the levels with ARIMA errors
+------------------------------------------------------
+With regressor columns ``x_t = (x_t1 .. x_tk)`` (``ModelSpec.regressors``) the model is a
+regression of the series on the regressors *in levels*, whose errors follow the seasonal
+ARIMA model above::
+
+    y_t = x_t' beta + u_t,     (1-B)^d (1-B^m)^D u_t = mu + ARMA error,
+
+so, with ``Delta = (1-B)^d (1-B^m)^D`` applied to the regressors as to the series,
+
+    phi(B) Phi(B^m) (w_t - mu - (Delta x_t)' beta) = theta(B) Theta(B^m) e_t.
+
+The regressors are differenced with the series; ``beta`` keeps its meaning in levels (the
+effect on y of one unit of x, whatever the differencing). The coefficient of column ``c``
+is named ``x_<c>``. The errors ``u_t = y_t - x_t' beta`` are an ordinary seasonal ARIMA
+process, so the likelihood, the forecasts and the profiles are those of the model without
+regressors applied to ``y - X beta`` (:func:`regression_effect`), with the future values of
+the regressors added back to the forecasts.
+
+The other form a stack may use, a regression of the *differenced* series on undifferenced
+regressors (``w_t = x_t' gamma + ARMA``), is a different model: ``gamma`` is the effect of x
+on the change of y, and no conversion of coefficients turns one into the other. A stack
+that fits it is recorded as regressing "on differences" and its estimate as a different
+model, never converted.
+
+The constant and a drift. ``mu`` stays the mean of the differenced series, separate from
+the regressors. A time trend in levels is a regressor like any other: with ``d + D = s`` a
+regressor ``t^s`` with coefficient ``b`` differences to the constant ``s! m^D b``
+(:func:`trend_scale`), which is ``mu``. So with ``d + D = 1`` a stack's "drift" (a
+regression on ``t = 1..n`` with ARIMA errors, ``b`` per period) is ``mu = b`` when d = 1 and
+``mu = m b`` when D = 1; the conversion is exact, and the audit shows the two agree. A time
+column given as a regressor *and* ``+mean`` are the same term twice and are refused as
+collinear (:func:`forecastaudit.series.prepare_regressors` checks the rank of the
+differenced regressors with the constant).
+
 The names, factor blocks, polynomials and roots belong to :mod:`forecastaudit.layout`; the
 functions of that kind here are thin, stable shorthands for it.
 """
@@ -39,6 +74,7 @@ __all__ = [
     "ml_to_df_adjusted_sigma2",
     "parameter_names",
     "polynomial_roots_modulus",
+    "regression_effect",
     "trend_scale",
 ]
 
@@ -46,7 +82,8 @@ __all__ = [
 def coefficient_names(spec: ModelSpec) -> list[str]:
     """Canonical names of the free coefficients of ``spec`` (sigma2 excluded), in order.
 
-    Regular AR, seasonal AR, regular MA, seasonal MA, then ``mu``. Seasonal lags are written
+    Regular AR, seasonal AR, regular MA, seasonal MA, then ``mu``, then ``x_<column>`` for
+    each regressor. Seasonal lags are written
     as lag numbers: the second seasonal AR term at m=12 is ``sar_lag24``. The parameter
     layout (:func:`forecastaudit.layout.layout_of`) owns the names; this is a list copy.
     """
@@ -76,14 +113,57 @@ def ma_polynomial(spec: ModelSpec, params: Mapping[str, float]) -> np.ndarray:
 def difference(values: Sequence[float] | np.ndarray, spec: ModelSpec) -> np.ndarray:
     """Apply ``(1-B)^d (1-B^m)^D`` to ``values``: the differenced series w, of length n - d - mD.
 
-    Returns a new float array; the input is not modified.
+    A two-dimensional ``values`` (one column per regressor) is differenced column by column,
+    along its first axis. Returns a new float array; the input is not modified.
     """
     w = np.array(values, dtype=float, copy=True)
     for _ in range(spec.D):
         w = w[spec.m :] - w[: -spec.m]
     for _ in range(spec.d):
-        w = np.diff(w)
+        w = np.diff(w, axis=0)
     return w
+
+
+def regression_effect(
+    spec: ModelSpec,
+    params: Mapping[str, float],
+    regressors: np.ndarray | None,
+    rows: int | None = None,
+) -> np.ndarray:
+    """``X beta``: the regressors' contribution to the levels of the (transformed) series.
+
+    Parameters
+    ----------
+    spec : ModelSpec
+    params : mapping
+        Canonical parameters; the ``x_<column>`` values are read.
+    regressors : numpy.ndarray or None
+        Shape ``(n, k)``, columns in ``spec.regressors`` order. None without regressors.
+    rows : int, optional
+        Length of the zero result when the spec has no regressors.
+
+    Returns
+    -------
+    numpy.ndarray
+        A new array of length n (zeros without regressors), so that ``y - X beta`` are the
+        ARIMA errors of the regression.
+
+    Raises
+    ------
+    ValueError
+        When the spec has regressors and none are given, or their number of columns differs.
+    """
+    names = layout_of(spec).regressor_names
+    if not names:
+        n = rows if rows is not None else (0 if regressors is None else len(regressors))
+        return np.zeros(n)
+    if regressors is None:
+        raise ValueError(f"{spec} has regressors; pass their values (an (n, k) array).")
+    x = np.asarray(regressors, dtype=float)
+    if x.ndim != 2 or x.shape[1] != len(names):
+        raise ValueError(f"{spec} has {len(names)} regressor(s); got an array of shape {x.shape}.")
+    beta = np.array([float(params[name]) for name in names])
+    return x @ beta
 
 
 def polynomial_roots_modulus(poly: np.ndarray) -> np.ndarray:

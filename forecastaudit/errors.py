@@ -7,9 +7,13 @@ errors apart from bugs. Each message names the problem and the fix.
 from __future__ import annotations
 
 __all__ = [
+    "EnvironmentSetupError",
     "EstimatorError",
     "ForecastAuditError",
+    "ImportRecordError",
+    "PanelError",
     "RecordError",
+    "RegressorError",
     "SeriesError",
     "SpecError",
     "ToleranceError",
@@ -28,6 +32,13 @@ class SeriesError(ForecastAuditError, ValueError):
     """The input series cannot be audited as given (values, index or length)."""
 
 
+class RegressorError(SeriesError):
+    """The regressor values (at fit time or for the forecast) cannot be used as given.
+
+    A subclass of :class:`SeriesError`: regressors are part of the data being audited.
+    """
+
+
 class ToleranceError(ForecastAuditError, ValueError):
     """A tolerance is missing, negative or of the wrong type."""
 
@@ -42,3 +53,11 @@ class RecordError(ForecastAuditError, ValueError):
 
 class PanelError(ForecastAuditError, ValueError):
     """A panel of series (its table, ids, specifications or store) cannot be audited as given."""
+
+
+class ImportRecordError(ForecastAuditError, ValueError):
+    """An import record (an estimate made elsewhere) cannot be read or does not fit the audit."""
+
+
+class EnvironmentSetupError(ForecastAuditError, ValueError):
+    """Another Python environment cannot be created, found or run."""

@@ -23,6 +23,15 @@ from forecastaudit.spec import ModelSpec
 Status = Literal["ok", "failed", "unavailable", "unsupported", "timed-out"]
 #: Whether a reported innovation variance is the maximum-likelihood one or df-adjusted.
 Sigma2Kind = Literal["maximum-likelihood", "df-adjusted"]
+#: Where an estimate was made: fitted by an adapter in this environment, imported from a
+#: record of software that does not run here, or fitted in another Python environment.
+Origin = Literal["fitted", "imported", "environment"]
+#: Each origin in words, for tables and reports.
+ORIGINS: dict[str, str] = {
+    "fitted": "fitted here",
+    "imported": "imported",
+    "environment": "another environment",
+}
 
 
 def _tagged(value: Any) -> Any:
@@ -41,7 +50,7 @@ def _spec_from_dict(data: dict[str, Any] | None) -> ModelSpec | None:
         period=data.get("period"),
         mean=bool(data.get("mean", False)),
         transform=transform,
-        exog=tuple(data.get("exog", ())),
+        regressors=tuple(data.get("regressors", data.get("exog", ()))),
     )
 
 
@@ -106,6 +115,11 @@ class Estimate:
         Every warning raised during the fit (none are shown or swallowed).
     output : str
         Anything the library printed during the fit.
+    origin : {"fitted", "imported", "environment"}
+        Where the estimate was made (see :data:`ORIGINS`).
+    provenance : dict
+        Where it came from beyond the package version: the import record's source and
+        digest, or the other environment's interpreter and package versions.
     """
 
     key: str
@@ -139,6 +153,8 @@ class Estimate:
     warnings: list[CapturedWarning] = field(default_factory=list)
     output: str = ""
     seconds: float = 0.0
+    origin: Origin = "fitted"
+    provenance: dict[str, Any] = field(default_factory=dict)
     native: Any = field(default=None, repr=False, compare=False)
 
     @property
@@ -192,6 +208,8 @@ class Estimate:
             "warnings": [w.to_dict() for w in self.warnings],
             "output": self.output,
             "seconds": _tagged(self.seconds),
+            "origin": self.origin,
+            "provenance": _tagged(self.provenance),
         }
 
     @classmethod
@@ -229,7 +247,19 @@ class Estimate:
             warnings=[CapturedWarning.from_dict(w) for w in data.get("warnings", [])],
             output=data.get("output", ""),
             seconds=real(data.get("seconds", 0.0)),
+            origin=data.get("origin", "fitted"),
+            provenance=dict(data.get("provenance", {})),
         )
+
+    @property
+    def column(self) -> str:
+        """The estimate's column heading: its key, with its origin when not fitted here (for
+        another environment, the library version there)."""
+        if self.origin == "fitted":
+            return self.key
+        if self.origin == "environment":
+            return f"{self.key} ({self.package} {self.version or 'not installed'})"
+        return f"{self.key} ({ORIGINS.get(self.origin, self.origin)})"
 
 
 @dataclass

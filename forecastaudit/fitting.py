@@ -58,6 +58,9 @@ class FitTask:
     loglike_at : tuple of dict
         Canonical parameter sets at which to evaluate the library's own likelihood
         (adapters declaring ``own_loglike`` only).
+    future_regressors : numpy.ndarray or None
+        The regressors over the ``steps`` forecast periods, ``(steps, k)``, when the spec
+        has regressors (their sample values travel in ``request``).
     label : str
         What the progress bar and messages call this unit.
     """
@@ -69,6 +72,7 @@ class FitTask:
     loglike_at: tuple[Mapping[str, float], ...] = ()
     label: str = ""
     adapter: type | None = field(default=None, compare=False)
+    future_regressors: np.ndarray | None = field(default=None, compare=False)
 
 
 @dataclass
@@ -87,7 +91,7 @@ def fit_unit(task: FitTask) -> FitOutcome:
     estimate = adapter.fit(task.request)
     forecast = None
     if estimate.ok and task.steps > 0 and adapter.capabilities.forecast:
-        forecast = adapter.forecast(estimate, task.steps, task.levels)
+        forecast = adapter.forecast(estimate, task.steps, task.levels, task.future_regressors)
     own: tuple[float, ...] = ()
     if estimate.ok and task.loglike_at and adapter.capabilities.own_loglike:
         own = tuple(adapter.loglike_at(task.request, dict(p)) for p in task.loglike_at)
@@ -179,9 +183,19 @@ def fit_tasks(
     steps: int = 0,
     levels: tuple[float, ...] = (),
     label: str = "",
+    regressors: np.ndarray | None = None,
+    future_regressors: np.ndarray | None = None,
 ) -> list[FitTask]:
-    """One task per adapter key on the same series (the adapter classes resolved here)."""
-    request = FitRequest(np.asarray(y, dtype=float), spec)
+    """One task per adapter key on the same series (the adapter classes resolved here).
+
+    ``regressors`` (``(n, k)``) and ``future_regressors`` (``(steps, k)``) are the regressor
+    values over the sample and the forecast periods when the spec has regressors.
+    """
+    request = FitRequest(
+        np.asarray(y, dtype=float),
+        spec,
+        None if regressors is None else np.asarray(regressors, dtype=float),
+    )
     return [
         FitTask(
             key=key,
@@ -190,6 +204,7 @@ def fit_tasks(
             levels=levels,
             label=f"{key} {label}".strip(),
             adapter=adapter_class(key),
+            future_regressors=future_regressors,
         )
         for key in keys
     ]

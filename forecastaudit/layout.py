@@ -235,7 +235,7 @@ class ParameterLayout:
         ``mu`` is a parameter.
     regressors : tuple of str
         Regressor columns, in order; each adds a coefficient ``x_<column>`` after ``mu``.
-        :func:`layout_of` passes ``spec.exog``.
+        :func:`layout_of` passes ``spec.regressors``.
 
     Attributes
     ----------
@@ -501,11 +501,11 @@ class ParameterLayout:
 # ====================================================================== access
 @lru_cache(maxsize=256)
 def _cached_layout(spec: ModelSpec) -> ParameterLayout:
-    return ParameterLayout(spec, regressors=spec.exog)
+    return ParameterLayout(spec, regressors=spec.regressors)
 
 
 def layout_of(spec: ModelSpec) -> ParameterLayout:
-    """The parameter layout of ``spec`` (regressors from ``spec.exog``), built once per spec.
+    """The parameter layout of ``spec`` (regressors from ``spec.regressors``), built once per spec.
 
     A :class:`ModelSpec` is a frozen dataclass, so equal specs share one cached layout; an
     unhashable stand-in is laid out afresh on every call.
@@ -513,7 +513,7 @@ def layout_of(spec: ModelSpec) -> ParameterLayout:
     try:
         return _cached_layout(spec)
     except TypeError:  # lru_cache could not hash the spec
-        return ParameterLayout(spec, regressors=tuple(spec.exog))
+        return ParameterLayout(spec, regressors=tuple(spec.regressors))
 
 
 def polynomial_roots(spec: ModelSpec, params: Mapping[str, float]) -> dict[str, np.ndarray]:

@@ -19,6 +19,7 @@ from forecastaudit.diagnosis.tolerances import Tolerances
 from forecastaudit.errors import SpecError
 from forecastaudit.search.common import _json, _records
 from forecastaudit.spec import ModelSpec
+from forecastaudit.validation import echo, whole_number
 
 
 # ====================================================================== model choice
@@ -39,7 +40,8 @@ class ModelChoiceResult:
         Rank of each model (columns) within each implementation (rows) by holdout MASE.
     aicc_ranks : pandas.DataFrame
         Rank by reference AICc within each group of models that share their differencing
-        (columns ``<model>``), per implementation; NaN where a model has no partner.
+        and their transform (columns ``<model>``), per implementation; NaN where a model has
+        no partner.
     preferred : dict of str to str
         Per implementation, the model with the lowest holdout MASE.
     stable : bool
@@ -82,6 +84,32 @@ class ModelChoiceResult:
             "seconds": self.seconds,
         }
 
+    def to_html(self, path: str | None = None) -> str:
+        """The model-choice report as one self-contained HTML page; written to ``path``."""
+        from forecastaudit.files import write_text_atomic
+        from forecastaudit.report.model_choice import render_model_choice_html
+
+        text = render_model_choice_html(self)
+        if path is not None:
+            write_text_atomic(path, text)
+        return text
+
+    def to_markdown(self, path: str | None = None) -> str:
+        """The model-choice report in Markdown, for a change request; written to ``path``."""
+        from forecastaudit.files import write_text_atomic
+        from forecastaudit.report.model_choice import render_model_choice_markdown
+
+        text = render_model_choice_markdown(self)
+        if path is not None:
+            write_text_atomic(path, text)
+        return text
+
+    def __repr__(self) -> str:
+        return (
+            f"<ModelChoiceResult {len(self.specs)} models, holdout {self.origins} x "
+            f"{self.holdout}: {'same ranking' if self.stable else 'ranking differs'}>"
+        )
+
     def __str__(self) -> str:
         lines = [
             f"Model choice over {len(self.specs)} models, holdout {self.origins} x "
@@ -100,7 +128,7 @@ def compare_models(
     y: Any,
     specs: Sequence[ModelSpec | str],
     *,
-    holdout: int,
+    holdout: int | None,
     origins: int = 1,
     estimators: Iterable[str] | None = None,
     tolerances: Tolerances | Mapping[str, float] | None = None,
@@ -137,9 +165,23 @@ def compare_models(
     """
     from forecastaudit.pipeline import audit
 
+    if isinstance(specs, str | ModelSpec) or not isinstance(specs, Sequence):
+        raise SpecError(
+            "specs must be a list of two or more models, e.g. ['ARIMA(0,1,1)x(0,1,1)12', "
+            f"'ARIMA(1,1,0)x(0,1,1)12'], got {echo(specs)}."
+        )
     parsed = [ModelSpec.parse(s) if isinstance(s, str) else s for s in specs]
     if len(parsed) < 2:
         raise SpecError("compare_models needs at least two models to compare.")
+    if holdout is None:
+        # Without a holdout there is no accuracy to rank by, and "every implementation
+        # ranks the models the same" would be said of no ranking at all.
+        raise SpecError(
+            "compare_models ranks models by holdout accuracy and needs holdout=H (steps "
+            "held out per origin), e.g. holdout=12."
+        )
+    holdout = whole_number(holdout, "holdout", minimum=1, example="12")
+    origins = whole_number(origins, "origins", minimum=1, example="3")
     tol = (
         tolerances
         if isinstance(tolerances, Tolerances)
@@ -230,11 +272,14 @@ def compare_models(
                 {"ordering": list(first)},
             )
         )
-    # Reference AICc ranks, only among models that share their differencing.
+    # Reference AICc ranks, only among models that share their differencing and their
+    # transform: likelihoods of differently differenced or transformed series do not compare.
     aicc = scores.pivot(index="estimator", columns="model", values="aicc")[labels]
     aicc_ranks = pd.DataFrame(index=aicc.index, columns=labels, dtype=float)
-    diff_of = {str(r.spec): (r.spec.d, r.spec.D) for r in reports.values()}
-    for choice in set(diff_of.values()):
+    diff_of = {
+        str(r.spec): (r.spec.d, r.spec.D, r.spec.transform or "none") for r in reports.values()
+    }
+    for choice in sorted(set(diff_of.values())):
         members = [lab for lab in labels if diff_of[lab] == choice]
         if len(members) < 2:
             continue
@@ -248,7 +293,8 @@ def compare_models(
                     "warn",
                     None,
                     "aicc",
-                    f"Among the models with d={choice[0]}, D={choice[1]} the ranking by "
+                    f"Among the models with d={choice[0]}, D={choice[1]} and transform "
+                    f"{choice[2]} the ranking by "
                     "reference AICc at each implementation's estimate differs between "
                     "implementations.",
                     {"orderings": [list(o) for o in orders]},

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 import datetime as _dt
 import math
 from collections.abc import Iterable, Mapping, Sequence
@@ -18,6 +19,7 @@ from forecastaudit.conventions import (
     information_criteria,
     parameter_names,
 )
+from forecastaudit.diagnosis.declarations import check_declarations, declaration_finding
 from forecastaudit.diagnosis.diagnose import (
     CAUSE_KINDS,
     OwnObjective,
@@ -41,7 +43,13 @@ from forecastaudit.diagnosis.materiality import measure_materiality
 from forecastaudit.diagnosis.rescore import Rescore, canonical_criteria
 from forecastaudit.diagnosis.tables import likelihood_table, parameter_table
 from forecastaudit.diagnosis.tolerances import Tolerances
-from forecastaudit.errors import EstimatorError, SeriesError, SpecError
+from forecastaudit.errors import (
+    EnvironmentSetupError,
+    EstimatorError,
+    ImportRecordError,
+    SeriesError,
+    SpecError,
+)
 from forecastaudit.estimate import REFERENCE_ENGINE, REFERENCE_KEY, Estimate, Forecast
 from forecastaudit.fitting import (
     DEFAULT_TIME_LIMIT,
@@ -50,16 +58,33 @@ from forecastaudit.fitting import (
     run_fits,
     run_own_loglikes,
 )
+from forecastaudit.imported import (
+    ImportRecord,
+    imported_estimate,
+    imported_forecast,
+    read_import,
+)
 from forecastaudit.result import AuditResult
 from forecastaudit.run import Backend, make_backend
-from forecastaudit.series import PreparedSeries, check_length, prepare_series
+from forecastaudit.series import (
+    PreparedSeries,
+    check_length,
+    period_from_frequency,
+    prepare_future_regressors,
+    prepare_regressors,
+    prepare_series,
+    with_regressors,
+)
 from forecastaudit.spec import ModelSpec
+from forecastaudit.validation import check_levels, echo, limit_error, plain, whole_number
 
 #: The production estimator when the caller names none (see :func:`audit`).
 DEFAULT_PRODUCTION = "statsmodels-sarimax"
+#: When the reference likelihood is mapped over a two-coefficient model's surface.
+GRID_CHOICES = ("always", "on-failure")
 
 
-def _resolve_spec(spec: ModelSpec | str, series_period: int | None) -> ModelSpec:
+def _parse_spec(spec: ModelSpec | str) -> ModelSpec:
     if isinstance(spec, str):
         spec = ModelSpec.parse(spec)
     if not isinstance(spec, ModelSpec):
@@ -67,9 +92,66 @@ def _resolve_spec(spec: ModelSpec | str, series_period: int | None) -> ModelSpec
             f"spec must be a ModelSpec or its text form, got {type(spec).__name__}; e.g. "
             "fa.ModelSpec(order=(0, 1, 1), seasonal=(0, 1, 1), period=12)."
         )
+    return spec
+
+
+def _resolve_spec(spec: ModelSpec | str, series_period: int | None) -> ModelSpec:
+    spec = _parse_spec(spec)
     if spec.period is None and series_period is not None and series_period > 1:
         spec = spec.with_period(series_period)
     return spec
+
+
+def resolve_series_and_spec(
+    y: Any, spec: ModelSpec | str, period: Any, name: str | None
+) -> tuple[PreparedSeries, ModelSpec]:
+    """The prepared series and the spec with its period, agreeing on that period.
+
+    The period fitted is the one recorded. It comes from the model, the ``period`` argument
+    or the series' index, in that order of precedence, and where two of them give a period
+    they must agree: a ``period`` argument that contradicts the model is refused, and so is
+    a model whose period contradicts the index (a quarterly model on monthly data, a
+    period-12 model on daily data) unless ``period`` confirms it deliberately.
+    """
+    parsed = _parse_spec(spec)
+    _check_work(parsed)
+    if period is not None:
+        period = whole_number(
+            period, "period", minimum=1, error=SeriesError, example="12 for monthly data"
+        )
+        if parsed.period is not None and period != parsed.period:
+            raise SpecError(
+                f"period={period} contradicts the model {parsed}, whose period is "
+                f"{parsed.period}; give the period once (in the model or as period=), or make "
+                "them agree."
+            )
+    series = prepare_series(y, period=period if period is not None else parsed.period, name=name)
+    implied = period_from_frequency(series.frequency)
+    if (
+        period is None
+        and parsed.period is not None
+        and implied is not None
+        and implied != parsed.period
+    ):
+        raise SpecError(
+            f"The model {parsed} has period {parsed.period}, but the index of "
+            f"'{plain(series.name)}' has frequency {series.frequency}, whose period is "
+            f"{implied}. Write the model with period {implied}, or pass "
+            f"period={parsed.period} to fit period {parsed.period} on this index deliberately."
+        )
+    resolved = _resolve_spec(parsed, series.period)
+    _check_work(resolved)
+    if resolved.period is not None and series.period != resolved.period:
+        series = dataclasses.replace(series, period=resolved.period)
+    return series, resolved
+
+
+def _check_work(spec: ModelSpec) -> None:
+    """Refuse a model whose size would exhaust memory (see :class:`~forecastaudit.Limits`)."""
+    limit_error("The seasonal period", spec.m, "period", SpecError)
+    ar_lag = spec.p + spec.m * spec.P
+    ma_lag = spec.q + spec.m * spec.Q
+    limit_error(f"The largest lag of {spec}", max(ar_lag, ma_lag), "lags", SpecError)
 
 
 def _resolve_estimators(estimators: Iterable[str] | None) -> list[str]:
@@ -152,6 +234,11 @@ def audit(
     workers: int | Backend | None = None,
     time_limit: float | None = DEFAULT_TIME_LIMIT,
     production: str | None = DEFAULT_PRODUCTION,
+    likelihood_grid: str = "always",
+    regressors: pd.DataFrame | None = None,
+    future_regressors: pd.DataFrame | None = None,
+    imported: Sequence[Any] | None = None,
+    environments: Mapping[str, Any] | Sequence[str] | str | None = None,
 ) -> AuditResult:
     """Fit ``spec`` through every estimator, re-score under the reference likelihood, diagnose.
 
@@ -207,6 +294,36 @@ def audit(
         Seconds one estimator's fit and forecast may take, where the backend can stop it
         (worker processes; a fit in this process cannot be stopped). Past it the estimator
         is reported ``timed-out`` and the audit goes on. Default 600; None for no limit.
+    likelihood_grid : {"always", "on-failure"}
+        When to map the reference likelihood over its two coefficients (a model with
+        exactly two; 961 evaluations, about a third of a small audit's time) for the
+        report's surface plot: ``"always"`` (the default), or only when the audit fails
+        (``"on-failure"``, what panels use: they write reports for failing series only).
+    regressors : pandas.DataFrame, optional
+        The regressor values when the spec names regressors (``ModelSpec(regressors=...)`` or
+        ``+x(price,promo)``): a regression on the levels with ARIMA errors. One column per
+        named regressor (others are ignored), indexed like the series (with a date or period
+        index, the same labels; otherwise one row per observation, in order). Not
+        transformed. Each holdout origin fits on the rows before it and forecasts with the
+        held-out rows as known future values. Not modified.
+    future_regressors : pandas.DataFrame, optional
+        The regressors over the ``horizon`` periods after the series (at least ``horizon``
+        rows, indexed by those periods when the series has dates); required with
+        regressors. Not modified.
+    imported : sequence of path, mapping or ImportRecord, optional
+        Estimates made by software that does not run here, as import records (see
+        :func:`forecastaudit.imported.read_import` and docs/estimates-made-elsewhere.md).
+        Each must be of ``spec``; it joins the audit as a column named by its label, marked
+        as imported: normalised to the canonical convention, re-scored, compared, and its
+        declared conventions checked against its reported log-likelihood. It has no
+        holdout (nothing can be refitted here). An imported label may be ``production``.
+    environments : mapping, sequence of str or str, optional
+        Other Python environments (made by ``forecastaudit environment create``, see
+        :mod:`forecastaudit.environments`) to run estimators in, beside those of this one:
+        ``{"statsmodels-0.14": "statsmodels-sarimax"}`` (a key or a list of keys per
+        environment), or environment names (every estimator that can run elsewhere). Each
+        becomes a column ``<key>@<environment>`` with the environment's library version;
+        its estimates' provenance carries the environment's package versions.
 
     Returns
     -------
@@ -214,7 +331,7 @@ def audit(
 
     Raises
     ------
-    SpecError, SeriesError, EstimatorError, ToleranceError
+    SpecError, SeriesError, RegressorError, EstimatorError, ToleranceError
         On invalid input, before anything is fitted.
     """
     if tolerances is None:
@@ -223,20 +340,42 @@ def audit(
         tol = tolerances
     else:
         tol = Tolerances.from_dict(dict(tolerances))
-    if period is None and isinstance(spec, ModelSpec):
-        period = spec.period
-    series = prepare_series(y, period=period, name=name)
-    spec = _resolve_spec(spec, series.period)
+    series, spec = resolve_series_and_spec(y, spec, period, name)
     check_length(series, spec)
     y_t = series.transformed(spec)
+    _check_magnitude(y_t, series.name, spec)
     _check_not_constant(y_t, series.name, spec)
     keys = _resolve_estimators(estimators)
+    keys += [k for k in _resolve_environments(environments) if k not in keys]
+    records = _resolve_imports(imported, spec, keys)
     steps = (
         _check_steps(horizon, "horizon") if horizon is not None else (spec.m if spec.m > 1 else 12)
     )
+    prepared_x = prepare_regressors(regressors, series, spec)
+    future_x = prepare_future_regressors(future_regressors, series, prepared_x, steps)
+    series = with_regressors(series, prepared_x)  # the data fingerprint covers them
+    if prepared_x is not None and order_search:
+        raise SpecError(
+            "The order-search audit does not take regressors yet (the libraries' searches are "
+            "run on the series alone); audit the specified model with regressors, and the "
+            "order search separately without them."
+        )
     level_tuple = _check_levels(levels)
     if holdout is not None:
-        _check_holdout(series, spec, holdout, origins)
+        holdout, origins = _check_holdout(series, spec, holdout, origins)
+    elif (
+        not (isinstance(origins, int | np.integer) and not isinstance(origins, bool))
+        or origins != 1
+    ):
+        raise SpecError(
+            f"origins={echo(origins)} has no effect without holdout: pass holdout=H to score "
+            "forecasts at each origin, or leave origins at 1."
+        )
+    if likelihood_grid not in GRID_CHOICES:
+        raise SpecError(
+            f"likelihood_grid must be one of {', '.join(map(repr, GRID_CHOICES))}, "
+            f"not {likelihood_grid!r}."
+        )
 
     # Worker processes start from a server that has the libraries imported already, so a
     # library's import time does not count against a fit's time limit.
@@ -254,10 +393,14 @@ def audit(
             holdout,
             origins,
             order_search,
-            production=_resolve_production(production, keys),
+            production=_resolve_production(production, keys, [r.label for r in records]),
             backend=backend,
             time_limit=time_limit,
             progress=progress,
+            likelihood_grid=likelihood_grid,
+            x=None if prepared_x is None else prepared_x.values,
+            x_future=future_x,
+            records=records,
         )
     finally:
         if not isinstance(workers, Backend):
@@ -280,28 +423,50 @@ def _audit_stages(
     backend: Backend,
     time_limit: float | None,
     progress: bool,
+    likelihood_grid: str = "always",
+    x: np.ndarray | None = None,
+    x_future: np.ndarray | None = None,
+    records: Sequence[ImportRecord] = (),
 ) -> AuditResult:
     n_w = len(series) - spec.lost_to_differencing
     # Fit stage: every estimator fits and forecasts where it runs; plain values come back.
     outcomes = run_fits(
-        fit_tasks(keys, y_t, spec, steps=steps, levels=level_tuple),
+        fit_tasks(
+            keys,
+            y_t,
+            spec,
+            steps=steps,
+            levels=level_tuple,
+            regressors=x,
+            future_regressors=x_future,
+        ),
         backend,
         time_limit=time_limit,
         progress=f"fitting {spec}" if progress else None,
     )
     estimates = {key: o.estimate for key, o in zip(keys, outcomes, strict=True)}
     library_forecasts = {key: o.forecast for key, o in zip(keys, outcomes, strict=True)}
+    early: list[Finding] = []
+    # Estimates made elsewhere join as columns of their own, already canonical.
+    for record in records:
+        estimates[record.label] = _imported(record, y_t, spec, n_w)
+        fc, problem = _imported_forecast(record, spec, steps, level_tuple)
+        library_forecasts[record.label] = fc
+        if problem:
+            early.append(Finding("fit-failed", "warn", record.label, "forecast", problem))
 
     # Reference stage: a multi-start reference fit, then every estimate re-scored.
     from forecastaudit import reference as _reference
 
     ok = {k: e for k, e in estimates.items() if e.ok}
-    starts = {k: dict(e.params) for k, e in ok.items()}
-    fit = _reference.fit_reference(y_t, spec, starts)
+    # The reference starts from the fits made here only: an imported estimate is judged by
+    # the reference, and its declarations may be wrong.
+    starts = {k: dict(e.params) for k, e in ok.items() if k in keys}
+    fit = _reference.fit_reference(y_t, spec, starts, regressors=x)
     reference = _reference_estimate(spec, fit, n_w)
     standard_errors = {k: float(v) for k, v in fit.standard_errors.items()}
-    scored = {k: _reference.evaluate(y_t, spec, e.params) for k, e in ok.items()}
-    scored[REFERENCE_KEY] = _reference.evaluate(y_t, spec, reference.params)
+    scored = {k: _reference.evaluate(y_t, spec, e.params, regressors=x) for k, e in ok.items()}
+    scored[REFERENCE_KEY] = _reference.evaluate(y_t, spec, reference.params, regressors=x)
     best = max(s.profiled_loglike for s in scored.values())
     rescores = {
         k: Rescore(
@@ -314,7 +479,6 @@ def _audit_stages(
     all_estimates = {**estimates, REFERENCE_KEY: reference}
 
     # Forecasts from the full series, with each library's own intervals.
-    early: list[Finding] = []
     transformed: dict[str, Forecast] = {}
     for key, e in estimates.items():
         fc = library_forecasts.get(key)
@@ -332,7 +496,7 @@ def _audit_stages(
                     )
                 )
     transformed[REFERENCE_KEY] = _forecast_at_reference(
-        y_t, spec, reference.params, steps, level_tuple
+        y_t, spec, reference.params, steps, level_tuple, regressors=x, future_regressors=x_future
     )
     forecasts = {k: back_transform(fc, spec) for k, fc in transformed.items()}
 
@@ -348,13 +512,15 @@ def _audit_stages(
             backend=backend,
             time_limit=time_limit,
             progress=progress,
+            regressors=x,
         )
         for key, reason in holdout_result.failures.items():
             early.append(Finding("holdout-failure", "warn", key, "holdout", reason))
 
     # Each estimator judged against its own objective, and every disagreement measured in
     # decision units, before the diagnosis.
-    own = _own_objectives(estimates, y_t, spec, reference.params, backend, time_limit)
+    fitted_here = {k: e for k, e in estimates.items() if k in keys}
+    own = _own_objectives(fitted_here, y_t, spec, reference.params, backend, time_limit, x)
     accuracy = (
         holdout_result.accuracy["mase"].to_dict()
         if holdout_result is not None and "mase" in holdout_result.accuracy
@@ -366,7 +532,7 @@ def _audit_stages(
         if e.ok
     }
     remedies = _check_remedies(
-        estimates, rescores, reference, standard_errors, own, y_t, spec, backend, time_limit
+        fitted_here, rescores, reference, standard_errors, own, y_t, spec, backend, time_limit, x
     )
     findings = diagnose(
         spec,
@@ -381,7 +547,13 @@ def _audit_stages(
         remedies=remedies,
     )
     findings += early
-    profiles, grid = _likelihood_profiles(_reference, y_t, spec, estimates, reference, findings)
+    findings += [Finding("input-precision", "warn", None, "data", note) for note in series.notes]
+    for record in records:
+        check = check_declarations(record, y_t, spec, float(best), gap_tolerance=tol.loglike_atol)
+        findings.append(
+            declaration_finding(check, record, production=production in (record.label, None))
+        )
+    profiles = _likelihood_profiles(_reference, y_t, spec, estimates, reference, findings, x)
     engines = {k: all_estimates[k].engine for k in forecasts}
     spread = spread_band(forecasts, engines, REFERENCE_KEY, max(level_tuple)) if forecasts else None
     findings += with_policy_severity(
@@ -415,6 +587,9 @@ def _audit_stages(
     order = {"fail": 0, "warn": 1, "info": 2}
     findings = merge_wrapper_findings(findings, estimates)
     findings.sort(key=lambda f: order[f.severity])
+    grid = None
+    if likelihood_grid == "always" or any(f.severity == "fail" for f in findings):
+        grid = _likelihood_grid(_reference, y_t, spec, estimates, reference, profiles, x)
     for key, e in all_estimates.items():
         if key in rescores and e.ok and e.n_w:
             e.criteria = canonical_criteria(e, rescores[key])
@@ -445,15 +620,140 @@ def _audit_stages(
             "order_search": order_search,
             "point_forecast": point_kind(spec),
             "production": production,
+            **({"imported": [r.label for r in records]} if records else {}),
         },
         materiality={k: m.to_dict() for k, m in materiality.items()},
         created=_dt.datetime.now(_dt.UTC).replace(microsecond=0).isoformat(),
     )
 
 
-def _resolve_production(production: str | None, keys: list[str]) -> str | None:
+def _resolve_environments(
+    environments: Mapping[str, Any] | Sequence[str] | str | None,
+) -> list[str]:
+    """The keys of the estimators to run in other environments (their adapters made here)."""
+    from forecastaudit.adapters.other_environment import SUPPORTED, environment_adapter
+    from forecastaudit.adapters.registry import register_transient
+    from forecastaudit.environments import get_environment
+
+    if environments is None:
+        return []
+    if isinstance(environments, str):
+        environments = [environments]
+    if not isinstance(environments, Mapping | Sequence):
+        raise EnvironmentSetupError(
+            f"environments must be a mapping or a list of environment names, not "
+            f"{type(environments).__name__}; e.g. {{'statsmodels-0.14': 'statsmodels-sarimax'}}."
+        )
+    items = (
+        list(environments.items())
+        if isinstance(environments, Mapping)
+        else [(name, None) for name in environments]
+    )
+    keys = []
+    for name, libraries in items:
+        if not isinstance(name, str) or not (
+            libraries is None
+            or isinstance(libraries, str)
+            or (isinstance(libraries, Sequence) and all(isinstance(k, str) for k in libraries))
+        ):
+            raise EnvironmentSetupError(
+                "environments must map an environment name to an estimator key, a list of "
+                "keys or None (every estimator that can run there), or list environment "
+                f"names; got {name!r}: {libraries!r}."
+            )
+        get_environment(name)  # raises naming the environments there are
+        wanted = (
+            list(SUPPORTED)
+            if libraries is None
+            else [libraries]
+            if isinstance(libraries, str)
+            else list(libraries)
+        )
+        for library in wanted:
+            cls = environment_adapter(name, library)
+            register_transient(cls)
+            keys.append(cls.key)
+    return keys
+
+
+def _resolve_imports(
+    imported: Sequence[Any] | None, spec: ModelSpec, keys: Sequence[str]
+) -> list[ImportRecord]:
+    """Read every import record, and check it is of the audited model under a free label."""
+    if imported is None:
+        return []
+    if isinstance(imported, str | bytes) or not isinstance(imported, Sequence):
+        imported = [imported]
+    records = [read_import(item) for item in imported]
+    taken = {*keys, REFERENCE_KEY}
+    for record in records:
+        if record.spec != spec:
+            raise ImportRecordError(
+                f"The import record {record.label} ({record.source}) is of {record.spec}, "
+                f"but the audit is of {spec}. Import estimates of the audited model only."
+            )
+        if record.label in taken:
+            raise ImportRecordError(
+                f"The import record {record.source} has the label {record.label!r}, which "
+                "another estimate of this audit already uses; give it a label of its own "
+                "(the 'label' field, or '# label:' in the CSV form)."
+            )
+        taken.add(record.label)
+    return records
+
+
+def _imported(record: ImportRecord, y_t: np.ndarray, spec: ModelSpec, n_w: int) -> Estimate:
+    """The canonical estimate of a record; a missing sigma2 is the maximum-likelihood one at
+    its coefficients."""
+    from forecastaudit import reference as _reference
+
+    estimate = imported_estimate(record, n_w)
+    if not math.isfinite(estimate.params["sigma2"]):
+        trial = _reference.evaluate(y_t, spec, {**estimate.params, "sigma2": 1.0})
+        estimate.params["sigma2"] = float(trial.sigma2_hat)
+        estimate.notes.append(
+            "The record reports no sigma2: the maximum-likelihood value at its coefficients "
+            "is used."
+        )
+    if math.isfinite(estimate.loglike_native):
+        estimate.criteria = information_criteria(estimate.loglike_native, estimate.k or 0, n_w)
+    return estimate
+
+
+def _imported_forecast(
+    record: ImportRecord, spec: ModelSpec, steps: int, levels: tuple[float, ...]
+) -> tuple[Forecast | None, str]:
+    """A record's forecasts cut to the audit's horizon, or None and why they are left out."""
+    fc = imported_forecast(record, spec, levels)
+    if fc is None:
+        return None, ""
+    missing = [level for level in levels if level not in fc.lower]
+    if fc.steps < steps or missing:
+        why = (
+            f"{fc.steps} steps for a horizon of {steps}"
+            if fc.steps < steps
+            else f"no {', '.join(f'{v:g}%' for v in missing)} interval"
+        )
+        return None, (
+            f"{record.label}'s forecasts are left out of the comparison: the import record "
+            f"gives {why}. Give forecasts for every step and interval level of the audit "
+            "(or audit with its horizon and levels)."
+        )
+    if fc.steps > steps:
+        fc.mean, fc.se = fc.mean[:steps], fc.se[:steps]
+        fc.lower = {k: v[:steps] for k, v in fc.lower.items()}
+        fc.upper = {k: v[:steps] for k, v in fc.upper.items()}
+        fc.steps = steps
+    return fc, ""
+
+
+def _resolve_production(
+    production: str | None, keys: list[str], imported: Sequence[str] = ()
+) -> str | None:
     if production is None:
         return None
+    if isinstance(production, str) and production in imported:
+        return production
     if not isinstance(production, str):
         raise EstimatorError(
             f"production must be an estimator key (e.g. 'statsmodels-sarimax'), got "
@@ -476,10 +776,11 @@ def _own_objectives(
     optimum: Mapping[str, float],
     backend: Backend,
     time_limit: float | None,
+    x: np.ndarray | None = None,
 ) -> dict[str, OwnObjective]:
     """Each estimator's own likelihood at its estimate and at the reference optimum."""
     keys = [k for k, e in estimates.items() if e.ok and adapter_class(k).capabilities.own_loglike]
-    request = FitRequest(np.asarray(y_t, dtype=float), spec)
+    request = FitRequest(np.asarray(y_t, dtype=float), spec, x)
     tasks = [
         OwnLikelihoodTask(k, request, (dict(estimates[k].params), dict(optimum)), adapter_class(k))
         for k in keys
@@ -501,6 +802,7 @@ def _check_remedies(
     spec: ModelSpec,
     backend: Backend,
     time_limit: float | None,
+    x: np.ndarray | None = None,
 ) -> dict[str, str]:
     """Re-run once, rescaled, each estimator whose objective differs through a prior that
     depends on the series' scale: does the rescaled fit reproduce the reference optimum?"""
@@ -518,19 +820,24 @@ def _check_remedies(
     if not keys or level < 100.0:
         return {}
     scale = 10.0 ** math.floor(math.log10(level))
-    outcomes = run_fits(fit_tasks(keys, y_t / scale, spec), backend, time_limit=time_limit)
+    outcomes = run_fits(
+        fit_tasks(keys, y_t / scale, spec, regressors=x), backend, time_limit=time_limit
+    )
     remedies = {}
     for key, outcome in zip(keys, outcomes, strict=True):
         e = outcome.estimate
         if not e.ok:
             remedies[key] = f"Re-run on the series divided by {scale:g}: {e.status} ({e.reason})."
             continue
-        # Coefficients do not depend on the scale; mu and sigma2 scale with it.
+        # The ARMA coefficients do not depend on the scale; mu, the regression coefficients
+        # and sigma2 scale with it.
         worst = max(
             (
                 abs(e.params[n] - reference.params[n]) / standard_errors[n]
                 for n in coefficient_names(spec)
-                if n != "mu" and math.isfinite(standard_errors.get(n, math.nan))
+                if n != "mu"
+                and not n.startswith("x_")
+                and math.isfinite(standard_errors.get(n, math.nan))
             ),
             default=0.0,
         )
@@ -547,15 +854,7 @@ def _check_remedies(
 
 
 def _check_levels(levels: Sequence[float]) -> tuple[float, ...]:
-    try:
-        values = tuple(sorted({float(v) for v in levels}))
-    except (TypeError, ValueError):
-        raise SpecError(
-            f"levels must be numbers in percent, e.g. (80, 95); got {levels!r}."
-        ) from None
-    if not values or any(not 0 < v < 100 for v in values):
-        raise SpecError(f"levels must lie strictly between 0 and 100 (percent); got {levels!r}.")
-    return values
+    return check_levels(levels)
 
 
 def _likelihood_profiles(
@@ -565,8 +864,9 @@ def _likelihood_profiles(
     estimates: Mapping[str, Estimate],
     reference: Estimate,
     findings: list[Finding],
-) -> tuple[dict[str, pd.DataFrame], dict[str, Any] | None]:
-    """Profiles towards every disagreeing estimate, and a grid for two-coefficient models."""
+    x: np.ndarray | None = None,
+) -> dict[str, pd.DataFrame]:
+    """Profiles towards every disagreeing estimate."""
     disagreeing = [
         f.estimator
         for f in findings
@@ -575,8 +875,22 @@ def _likelihood_profiles(
     profiles: dict[str, pd.DataFrame] = {}
     for key in dict.fromkeys(disagreeing):
         profiles[key] = reference_module.profile_line(
-            y_t, spec, reference.params, estimates[key].params, n_points=41
+            y_t, spec, reference.params, estimates[key].params, n_points=41, regressors=x
         )
+    return profiles
+
+
+def _likelihood_grid(
+    reference_module: Any,
+    y_t: Any,
+    spec: ModelSpec,
+    estimates: Mapping[str, Estimate],
+    reference: Estimate,
+    profiles: Mapping[str, pd.DataFrame],
+    x: np.ndarray | None = None,
+) -> dict[str, Any] | None:
+    """The reference likelihood on a grid around every disagreeing estimate (a model with
+    exactly two coefficients; None otherwise)."""
     coefficients = coefficient_names(spec)
     grid = None
     if len(coefficients) == 2:
@@ -590,12 +904,18 @@ def _likelihood_profiles(
             half = max(0.1, 0.75 * (high - low))
             ranges.append((low - half, high + half))
         grid = reference_module.profile_grid(
-            y_t, spec, reference.params, tuple(coefficients), ranges=tuple(ranges), n=31
+            y_t,
+            spec,
+            reference.params,
+            tuple(coefficients),
+            ranges=tuple(ranges),
+            n=31,
+            regressors=x,
         )
         grid["points"] = {REFERENCE_KEY: dict(reference.params)} | {
             k: dict(estimates[k].params) for k in profiles
         }
-    return profiles, grid
+    return grid
 
 
 def _check_not_constant(y_t: np.ndarray, name: str, spec: ModelSpec) -> None:
@@ -615,14 +935,50 @@ def _check_not_constant(y_t: np.ndarray, name: str, spec: ModelSpec) -> None:
 
 
 def _check_steps(value: Any, what: str) -> int:
-    if isinstance(value, bool) or not isinstance(value, int) or value < 1:
-        raise SpecError(f"{what} must be a whole number of steps >= 1, got {value!r}.")
-    return value
+    steps = whole_number(value, f"{what} (steps)", minimum=1, example="12")
+    limit_error(f"{what.capitalize()}", steps, "horizon", SpecError)
+    return steps
 
 
-def _check_holdout(series: PreparedSeries, spec: ModelSpec, holdout: Any, origins: Any) -> None:
-    _check_steps(holdout, "holdout")
-    _check_steps(origins, "origins")
+def _check_magnitude(y_t: np.ndarray, name: str, spec: ModelSpec) -> None:
+    """Refuse values so large or so small that squares and variances leave float64.
+
+    Sums of squares of values near 1e300 overflow, and variances of values near 1e-300
+    underflow to zero, before any estimator or scipy routine can say so. Rescaling by the
+    caller is exact in effect (ARMA coefficients do not change; mu and sigma2 scale), so the
+    audit asks for it rather than guessing.
+    """
+    top = float(np.max(np.abs(y_t))) if y_t.size else 0.0
+    what = "the series" if spec.transform is None else f"the {spec.transform} series"
+    if top > MAX_MAGNITUDE:
+        raise SeriesError(
+            f"Values of {what} '{plain(name)}' reach {top:.3g}, beyond {MAX_MAGNITUDE:g}: their "
+            "squares overflow float64 inside every estimator. Divide the series by a power "
+            "of ten first (ARMA coefficients do not change; mu scales with it and sigma2 "
+            "with its square), or use the log transform."
+        )
+    w = difference(y_t, spec)
+    spread = float(np.max(np.abs(w - np.mean(w)))) if w.size else 0.0
+    if 0.0 < spread < MIN_SPREAD:
+        raise SeriesError(
+            f"The {'differenced ' if spec.lost_to_differencing else ''}values of {what} "
+            f"'{plain(name)}' vary by at most {spread:.3g}, below {MIN_SPREAD:g}: their "
+            "variance underflows float64. Multiply the series by a power of ten first (ARMA "
+            "coefficients do not change; mu scales with it and sigma2 with its square)."
+        )
+
+
+#: Largest magnitude of a (transformed) value accepted: its square stays far from overflow.
+MAX_MAGNITUDE = 1e100
+#: Smallest spread of the differenced values accepted: its square stays far from underflow.
+MIN_SPREAD = 1e-100
+
+
+def _check_holdout(
+    series: PreparedSeries, spec: ModelSpec, holdout: Any, origins: Any
+) -> tuple[int, int]:
+    holdout = _check_steps(holdout, "holdout")
+    origins = whole_number(origins, "origins", minimum=1, example="3")
     need = spec.minimum_length()
     train = len(series) - holdout * origins
     if train < need:
@@ -630,15 +986,31 @@ def _check_holdout(series: PreparedSeries, spec: ModelSpec, holdout: Any, origin
             f"A holdout of {origins} x {holdout} leaves {train} observations to fit on; {spec} "
             f"needs at least {need}. Hold out fewer observations or use fewer origins."
         )
+    return holdout, origins
 
 
 def _forecast_at_reference(
-    y_t: Any, spec: ModelSpec, params: Mapping[str, float], steps: int, levels: tuple[float, ...]
+    y_t: Any,
+    spec: ModelSpec,
+    params: Mapping[str, float],
+    steps: int,
+    levels: tuple[float, ...],
+    *,
+    regressors: np.ndarray | None = None,
+    future_regressors: np.ndarray | None = None,
 ) -> Forecast:
     """Forecast at the reference optimum with the reference model's own predictor."""
     from forecastaudit import reference as _reference
 
-    fc = _reference.best_linear_forecast(y_t, spec, params, steps, levels)
+    fc = _reference.best_linear_forecast(
+        y_t,
+        spec,
+        params,
+        steps,
+        levels,
+        regressors=regressors,
+        future_regressors=future_regressors,
+    )
     return Forecast(
         key=REFERENCE_KEY,
         status="ok",
@@ -665,16 +1037,29 @@ def _run_holdout(
     backend: Backend,
     time_limit: float | None,
     progress: bool = False,
+    regressors: np.ndarray | None = None,
 ) -> HoldoutResult:
     from forecastaudit import reference as _reference
 
     def reference_forecaster(
-        train_t: Any, estimates: Mapping[str, Estimate], steps: int
+        train_t: Any,
+        estimates: Mapping[str, Estimate],
+        steps: int,
+        regressors: np.ndarray | None = None,
+        future_regressors: np.ndarray | None = None,
     ) -> Forecast | None:
         starts = {k: dict(e.params) for k, e in estimates.items() if e.ok}
-        fit = _reference.fit_reference(train_t, spec, starts)
+        fit = _reference.fit_reference(train_t, spec, starts, regressors=regressors)
         params = {name: float(fit.params[name]) for name in parameter_names(spec)}
-        return _forecast_at_reference(train_t, spec, params, steps, levels)
+        return _forecast_at_reference(
+            train_t,
+            spec,
+            params,
+            steps,
+            levels,
+            regressors=regressors,
+            future_regressors=future_regressors,
+        )
 
     return run_holdout(
         series.values,
@@ -689,4 +1074,5 @@ def _run_holdout(
         time_limit=time_limit,
         progress=progress,
         engines={key: adapter_class(key).engine for key in keys},
+        regressors=regressors,
     )

@@ -69,6 +69,12 @@ class AuditResult:
         The order-search audit, when ``order_search=True``.
     created : str
         UTC time the audit finished (ISO 8601).
+    signoff : dict or None
+        The reviewer's sign-off (see :meth:`sign_off`).
+    invocation : dict or None
+        How the audit was started, when the command line started it: ``command_line`` (the
+        arguments) and ``input_file`` (``name``, ``sha256`` and ``bytes`` of the data file).
+        Written into the record's provenance.
     """
 
     spec: ModelSpec
@@ -91,6 +97,8 @@ class AuditResult:
     options: dict[str, Any] = field(default_factory=dict)
     materiality: dict[str, dict[str, Any]] = field(default_factory=dict)
     created: str = ""
+    signoff: dict[str, str] | None = None
+    invocation: dict[str, Any] | None = None
 
     # ------------------------------------------------------------------ verdict
     @property
@@ -157,6 +165,42 @@ class AuditResult:
         """Findings filtered by severity and/or kind (keywords)."""
         return select_findings(self.findings, severity=severity, kind=kind)
 
+    # ------------------------------------------------------------------ sign-off
+    def sign_off(
+        self,
+        *,
+        reviewer: str,
+        decision: str,
+        policy_reference: str,
+        comments: str = "",
+        date: str | None = None,
+    ) -> None:
+        """Record a reviewer's decision; it goes into the record and the reports.
+
+        The fields are those of :func:`forecastaudit.add_signoff`. A record written
+        afterwards carries the block; a signature made on that record covers it.
+
+        Raises
+        ------
+        RecordError
+            When a field is empty or invalid, or the audit has a sign-off already.
+        """
+        from forecastaudit.errors import RecordError
+        from forecastaudit.record.signing import signoff_block
+
+        if self.signoff is not None:
+            raise RecordError(
+                "This audit has a sign-off already; an audit is signed off once. Re-run the "
+                "audit for a new review."
+            )
+        self.signoff = signoff_block(
+            reviewer=reviewer,
+            decision=decision,
+            policy_reference=policy_reference,
+            comments=comments,
+            date=date,
+        )
+
     # ------------------------------------------------------------------ output
     def to_dict(self, *, created: str | None = None, timings: bool = True) -> dict[str, Any]:
         """The audit record as a plain dictionary (see ``record.build_record``)."""
@@ -199,6 +243,16 @@ class AuditResult:
         if path is not None:
             write_text_atomic(path, text)
         return text
+
+    def __repr__(self) -> str:
+        # Short outside Jupyter (which shows _repr_html_): the full dump ran to 68 KB.
+        counts = {s: len(self.findings_of(severity=s)) for s in ("fail", "warn", "info")}
+        keys = [k for k in self.estimates if k != "reference"]
+        return (
+            f"<AuditResult {self.spec} on {self.series.name!r} (n={len(self.series)}): "
+            f"{self.verdict}; {counts['fail']} fail, {counts['warn']} warn, {counts['info']} "
+            f"info; estimators {', '.join(keys) or 'none'}>"
+        )
 
     def _repr_html_(self) -> str:
         from forecastaudit.report.html import render_compact_html

@@ -30,7 +30,7 @@ from forecastaudit.adapters.protocol import Capabilities, EstimatorAdapter, FitR
 from forecastaudit.conventions import parameter_names
 from forecastaudit.diagnosis.tolerances import Tolerances
 from forecastaudit.estimate import Estimate, Sigma2Kind, estimate_schema
-from forecastaudit.record.changes import RecordDrift, compare_records
+from forecastaudit.record.changes import RecordChanges, compare_records
 from forecastaudit.result import AuditResult
 from forecastaudit.run import Backend
 from forecastaudit.spec import ModelSpec
@@ -147,7 +147,7 @@ def assert_no_drift(
     old: dict[str, Any] | str | os.PathLike[str],
     new: dict[str, Any] | str | os.PathLike[str] | AuditResult,
     tolerances: Tolerances | None = None,
-) -> RecordDrift:
+) -> RecordChanges:
     """Fail when ``new`` drifted from ``old`` beyond tolerance; return the drift otherwise."""
     if isinstance(new, AuditResult):
         new = new.to_dict()
@@ -757,6 +757,52 @@ def check_reference_loglike(subject: AdapterUnderCheck) -> None:
         raise AssertionError("; ".join(problems))
 
 
+def _regressor_case() -> tuple[np.ndarray, np.ndarray, np.ndarray, ModelSpec]:
+    """The seeded AR(1) plus 2 x a seeded regressor (a random walk), and 12 future values.
+
+    ``y_t = 10 + 2 x_t + u_t`` with ``u_t`` the AR(1) of :func:`_ar1_series` minus its mean:
+    a regression on the levels with AR(1) errors (the canonical form).
+    """
+    rng = np.random.default_rng(20240903)
+    x = np.cumsum(rng.standard_normal(132))[:, None]
+    y = _ar1_series() + 2.0 * x[:120, 0]
+    return y, x[:120], x[120:], ModelSpec(order=(1, 0, 0), mean=True, regressors=("driver",))
+
+
+def check_regressors(subject: AdapterUnderCheck) -> None:
+    """Regressors are fitted as declared, or refused as ``unsupported``.
+
+    An adapter declaring ``capabilities.regressors`` fits ``ARIMA(1,0,0) +mean +x(driver)``
+    on a seeded regression with AR(1) errors (true coefficient 2): the estimate has
+    ``x_driver`` within 0.2 of 2 (about five of its standard errors on these data; a wrong
+    sign, a scale or a regression on the differences is far off), leaves the regressor
+    values it was given untouched, and, when it forecasts, forecasts with the 12 future
+    values. An adapter without it returns ``unsupported`` with a reason.
+    """
+    y, x, future, spec = _regressor_case()
+    caps = subject.cls.capabilities
+    request = FitRequest(y.copy(), spec, x.copy())
+    estimate = subject.adapter.fit(request)
+    if not caps.regressors:
+        if estimate.status != "unsupported" or not _nonempty_text(estimate.reason):
+            raise AssertionError(
+                f"{spec} gave status {estimate.status!r} ({estimate.reason!r}) from an adapter "
+                "that does not declare regressors; expected 'unsupported' with a reason"
+            )
+        return
+    if not estimate.ok:
+        raise AssertionError(f"{spec} did not fit: {estimate.status} ({estimate.reason})")
+    value = estimate.params.get("x_driver", math.nan)
+    if not abs(value - 2.0) < 0.2:
+        raise AssertionError(f"x_driver = {value!r}, expected about 2 (the seeded coefficient)")
+    if not np.array_equal(request.regressors, x):
+        raise AssertionError("the adapter modified the regressor values it was given")
+    if caps.forecast:
+        forecast = subject.adapter.forecast(estimate, 12, CHECK_LEVELS, future.copy())
+        if not forecast.ok or forecast.mean.shape != (12,):
+            raise AssertionError(f"forecast with future regressors failed: {forecast.reason}")
+
+
 #: Every conformance check, in the order they run.
 ADAPTER_CHECKS: tuple[Callable[[AdapterUnderCheck], None], ...] = (
     check_class_attributes,
@@ -771,6 +817,7 @@ ADAPTER_CHECKS: tuple[Callable[[AdapterUnderCheck], None], ...] = (
     check_own_loglike,
     check_worker_fit,
     check_reference_loglike,
+    check_regressors,
 )
 
 

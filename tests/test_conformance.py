@@ -121,7 +121,7 @@ def test_extra_canonical_name_fails_the_fit_checks(backend: ProcessBackend) -> N
     message, names = _failing(ExtraNameAdapter, backend)
     assert names == {"check_fit_ar1", "check_fit_seasonal"}
     assert "unexpected ['ar_lag2']" in message
-    assert message.startswith("Adapter broken-extra-name failed 2 of 12 conformance checks")
+    assert message.startswith("Adapter broken-extra-name failed 2 of 13 conformance checks")
 
 
 def test_modified_input_fails_the_input_check(backend: ProcessBackend) -> None:

@@ -140,7 +140,7 @@ def _readme_commands() -> list[list[str]]:
 
 def test_readme_command_line_examples_run(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
     commands = _readme_commands()
-    assert {c[1] for c in commands} == {"demo", "audit", "drift", "compare-models", "estimators"}
+    assert {c[1] for c in commands} == {"demo", "audit", "changes", "compare-models", "estimators"}
     data = tmp_path / "forecastaudit" / "data"
     data.mkdir(parents=True)
     source = Path(fa.__file__).parent / "data" / "ashgrove_red_cell_units.csv"

@@ -18,6 +18,7 @@ def _libraries_imported_once() -> None:
     y = 20 + np.random.default_rng(0).normal(size=60)
     fa.audit(y, "ARIMA(1,0,0) +mean", estimators=["statsmodels-sarimax", "statsforecast"])
 
+
 INI = """
 [pytest]
 audit_estimators = statsmodels-sarimax,statsforecast
@@ -116,3 +117,69 @@ def test_marker_and_options_are_registered(pytester: pytest.Pytester) -> None:
     result.stdout.fnmatch_lines(["*slow_audit*"])
     result = pytester.runpytest("--help")
     result.stdout.fnmatch_lines(["*--audit-baselines*", "*--audit-update-baselines*"])
+
+
+PANEL_TEST_FILE = """
+import numpy as np
+import pandas as pd
+
+def panel():
+    rows = []
+    for k, name in enumerate(["north depot", "south depot", "east depot"]):
+        rng = np.random.default_rng(10 + k)
+        x = np.zeros(120)
+        for t in range(1, 120):
+            x[t] = 0.5 * x[t - 1] + rng.normal()
+        values = 40 + x + (SHIFT if name == "east depot" else 0.0)
+        months = pd.period_range("2016-01", periods=120, freq="M").astype(str)
+        rows.append(pd.DataFrame({"depot": name, "month": months, "units": values}))
+    return pd.concat(rows, ignore_index=True)
+
+def test_depots(panel_audit):
+    panel_audit(panel(), "ARIMA(1,0,0) +mean", id_column="depot", name="depots", workers=1)
+"""
+
+
+def test_panel_baseline_one_file_and_drift_by_series(pytester: pytest.Pytester) -> None:
+    pytester.makeini(INI)
+    pytester.makepyfile(test_panel_drift_check=PANEL_TEST_FILE.replace("SHIFT", "0.0"))
+    result = pytester.runpytest()
+    result.assert_outcomes(failed=1)
+    result.stdout.fnmatch_lines(["*No panel baseline*depots.panel.json*--audit-update-baselines*"])
+    pytester.runpytest("--audit-update-baselines").assert_outcomes(passed=1)
+    baseline = pytester.path / "audit-baselines" / "depots.panel.json"
+    document = json.loads(baseline.read_text())
+    assert sorted(document["series"]) == ["east depot", "north depot", "south depot"]
+    assert list(pytester.path.joinpath("audit-baselines").iterdir()) == [baseline]
+    pytester.runpytest().assert_outcomes(passed=1)
+    # New data for one depot only: the drift names that series and no other.
+    pytester.makepyfile(test_panel_drift_check=PANEL_TEST_FILE.replace("SHIFT", "1.5"))
+    result = pytester.runpytest()
+    result.assert_outcomes(failed=1)
+    result.stdout.fnmatch_lines(["*panel drifted from its baseline*", "*east depot: drift beyond*"])
+    assert "north depot: drift" not in result.stdout.str()
+
+
+def test_trusted_keys_require_a_signed_baseline(pytester: pytest.Pytester) -> None:
+    from forecastaudit.record.document import dumps, load_record
+
+    _project(pytester)
+    fa.generate_key_pair(pytester.path / "reviewer.pem", pytester.path / "reviewer.pub.pem")
+    pytester.runpytest("--audit-update-baselines").assert_outcomes(passed=1)
+    baseline = pytester.path / "audit-baselines" / "ar1-model.json"
+    result = pytester.runpytest("--audit-trusted-key", "reviewer.pub.pem")
+    result.assert_outcomes(failed=1)
+    result.stdout.fnmatch_lines(["*cannot be used*is not signed*"])
+    signed = fa.sign_record(load_record(baseline), pytester.path / "reviewer.pem")
+    baseline.write_text(dumps(signed), encoding="utf-8")
+    result = pytester.runpytest("--audit-trusted-key", "reviewer.pub.pem")
+    result.assert_outcomes(passed=1)
+    result.stdout.fnmatch_lines(["*baselines must be signed by one of 1 trusted key(s)*"])
+
+
+def test_a_trusted_key_that_is_not_a_key_is_a_usage_error(pytester: pytest.Pytester) -> None:
+    _project(pytester)
+    (pytester.path / "bad.pem").write_text("not a key")
+    result = pytester.runpytest("--audit-trusted-key", "bad.pem")
+    assert result.ret == pytest.ExitCode.USAGE_ERROR
+    result.stderr.fnmatch_lines(["*--audit-trusted-key*not a readable PEM public key*"])

@@ -56,6 +56,10 @@ def test_no_drift(report: fa.AuditResult) -> None:
     assert assert_no_drift(record, report).verdict == "no drift"
     moved = copy.deepcopy(record)
     moved["estimates"]["statsforecast"]["params"]["mu"] += 1.0
+    # Records are checked as files are: a deliberate edit is resealed.
+    from forecastaudit.record.document import content_digest
+
+    moved["content_sha256"] = content_digest(moved)
     with pytest.raises(AssertionError, match="DRIFT BEYOND TOLERANCE"):
         assert_no_drift(moved, record)
 

@@ -14,7 +14,17 @@ import numpy as np
 
 from forecastaudit.adapters.protocol import FitOutput, ForecastOutput
 from forecastaudit.conventions import intercept_to_mean, mean_to_intercept, trend_scale
+from forecastaudit.layout import layout_of
 from forecastaudit.spec import ModelSpec
+
+#: How the statsmodels state-space models regress (measured, statsmodels 0.15: SARIMAX and
+#: tsa.arima ARIMA with exog fit ``y_t = x_t' beta + u_t`` with ``u_t`` the SARIMA process,
+#: the default ``mle_regression=True``; on a seeded series with d = 1 the coefficients
+#: recover the levels effects). Their constant is a term of its own.
+REGRESSION_NOTE = (
+    "regression on the levels with ARIMA errors (statsmodels' default for exog): the "
+    "regression coefficients keep their meaning in levels; the constant is a separate term"
+)
 
 INTERVAL_METHOD = (
     "Gaussian: point forecast +/- z x the Kalman-filter forecast standard error at the "
@@ -26,6 +36,28 @@ ENGINE = "statsmodels-statespace"
 MeanKind = Literal["intercept", "mean", "trend"]
 
 _LAG_NAME = re.compile(r"^(ar|ma)\.(S\.)?L(\d+)$")
+
+
+def regressor_positions(names: list[str], spec: ModelSpec) -> dict[int, str]:
+    """Position in the parameter vector -> canonical name, for each regressor of the spec.
+
+    statsmodels lays out the state-space parameters as the trend (or, in tsa.arima, the
+    trend columns of its regression), then the regressors, then the lag terms and sigma2.
+    The regressors are therefore the last ``k`` names before the first lag term (or sigma2).
+    They are mapped by position, never by name: statsmodels names an array's columns ``x1,
+    x2, ...`` and calls a trend on t ``x1`` too, and a column may be named like a native term.
+    """
+    canonical = layout_of(spec).regressor_names
+    if not canonical:
+        return {}
+    first_lag = next(
+        (i for i, name in enumerate(names) if _LAG_NAME.match(name) or name == "sigma2"),
+        len(names),
+    )
+    start = first_lag - len(canonical)
+    if start < 0:
+        raise RuntimeError(f"fewer regression terms than regressors among {names}")
+    return {start + j: name for j, name in enumerate(canonical)}
 
 
 def canonical_coefficients(
@@ -65,9 +97,14 @@ def canonical_coefficients(
     params: dict[str, float] = {}
     extra: dict[str, float] = {}
     constant: float | None = None
-    for name, value in zip(names, np.asarray(values, dtype=float), strict=True):
+    regressors = regressor_positions(names, spec)
+    for position, (name, value) in enumerate(
+        zip(names, np.asarray(values, dtype=float), strict=True)
+    ):
         match = _LAG_NAME.match(name)
-        if match:
+        if position in regressors:
+            params[regressors[position]] = float(value)
+        elif match:
             kind, seasonal, lag = match.groups()
             prefix = ("s" if seasonal else "") + kind
             params[f"{prefix}_lag{lag}"] = float(value)
@@ -239,9 +276,12 @@ def native_vector(
     """
     constant_name = constant_name or {"intercept": "intercept", "mean": "const"}.get(mean_kind)
     values = []
-    for name in param_names:
+    regressors = regressor_positions(param_names, spec)
+    for position, name in enumerate(param_names):
         match = _LAG_NAME.match(name)
-        if match:
+        if position in regressors:
+            values.append(params[regressors[position]])
+        elif match:
             kind, seasonal, lag = match.groups()
             values.append(params[f"{'s' if seasonal else ''}{kind}_lag{lag}"])
         elif name == "sigma2":
@@ -276,9 +316,24 @@ def model_loglike(
     return float(model.loglike(vector))
 
 
-def statespace_forecast(result: Any, steps: int, levels: tuple[float, ...]) -> ForecastOutput:
-    """Forecast and Gaussian intervals from a SARIMAXResults, as its users get them."""
-    forecast = result.get_forecast(steps)
+def statespace_forecast(
+    result: Any, steps: int, levels: tuple[float, ...], future: Any = None
+) -> ForecastOutput:
+    """Forecast and Gaussian intervals from a SARIMAXResults, as its users get them.
+
+    ``future`` holds the regressors' values over the forecast periods (``(steps, k)``, in
+    the fit's column order), when the model has regressors; they are passed as a DataFrame
+    named like the fit's last ``k`` regression columns (tsa.arima ARIMA puts its trend
+    columns first and builds their future values itself).
+    """
+    if future is None:
+        forecast = result.get_forecast(steps)
+    else:
+        import pandas as pd
+
+        values = np.asarray(future, dtype=float)
+        columns = list(result.model.exog_names)[-values.shape[1] :]
+        forecast = result.get_forecast(steps, exog=pd.DataFrame(values, columns=columns))
     lower, upper = {}, {}
     for level in levels:
         bounds = np.asarray(forecast.conf_int(alpha=1.0 - level / 100.0))

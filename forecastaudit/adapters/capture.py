@@ -53,7 +53,7 @@ class _Captured:
         }
 
 
-def _run_captured(func: Any, *args: Any) -> _Captured:
+def _run_captured(func: Any, *args: Any, **kwargs: Any) -> _Captured:
     """Call ``func``, keeping its warnings and printed output; a raised error is returned."""
     out_buffer, err_buffer = io.StringIO(), io.StringIO()
     error, trace, result = "", "", None
@@ -65,7 +65,7 @@ def _run_captured(func: Any, *args: Any) -> _Captured:
     ):
         warnings.simplefilter("always")
         try:
-            result = func(*args)
+            result = func(*args, **kwargs)
         except Exception as exc:  # the library's failure is a finding, not a crash
             error = f"{type(exc).__name__}: {exc}"
             trace = traceback.format_exc(limit=3)

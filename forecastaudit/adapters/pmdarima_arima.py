@@ -29,13 +29,14 @@ from forecastaudit.adapters.registry import register_estimator
 from forecastaudit.spec import ModelSpec
 
 
-def pmdarima_sarimax(estimator: Any, y: np.ndarray) -> Any:
+def pmdarima_sarimax(estimator: Any, y: np.ndarray, x: Any = None) -> Any:
     """The statsmodels SARIMAX model a pmdarima ``ARIMA`` estimator's ``fit(y)`` builds.
 
     Mirrors pmdarima 2.x ``ARIMA.fit`` / ``_fit``: ``y`` as float64, ``trend`` the
     estimator's own, else ``'c'`` when ``with_intercept`` is true (else None, no trend), the
     seasonal order through pmdarima's own check, and the estimator's ``sarimax_kwargs``
-    (whatever its constructor was given beyond its own options) passed on unchanged. Used by
+    (whatever its constructor was given beyond its own options) passed on unchanged, and the
+    regressors ``x`` (a DataFrame or None) as ``exog``. Used by
     every adapter whose fit ends in a pmdarima ``ARIMA`` (pmdarima's, and sktime's wrapper).
 
     Raises
@@ -57,7 +58,7 @@ def pmdarima_sarimax(estimator: Any, y: np.ndarray) -> Any:
         trend = "c"
     return SARIMAX(
         endog=np.asarray(y, dtype=np.float64),
-        exog=None,
+        exog=x,
         order=estimator.order,
         seasonal_order=check_seasonal_order(estimator.seasonal_order),
         trend=trend,
@@ -76,6 +77,8 @@ class PmdarimaArima(EstimatorAdapter):
     description = "pmdarima ARIMA"
     capabilities = Capabilities(
         mean_differences=frozenset(range(0, 6)),
+        regressors=True,
+        regression_form="levels",
         own_loglike=True,
     )
 
@@ -93,7 +96,8 @@ class PmdarimaArima(EstimatorAdapter):
         y, spec = request.y, request.spec
 
         model = self._estimator(spec)
-        model.fit(y)
+        x = request.regressor_frame() if spec.regressors else None
+        model.fit(y, X=x) if x is not None else model.fit(y)
         n = len(y)
         return _statespace.to_fit_output(
             model.arima_res_,
@@ -103,7 +107,8 @@ class PmdarimaArima(EstimatorAdapter):
             criteria={"aic": model.aic(), "aicc": model.aicc(), "bic": model.bic()},
             notes=[
                 f"pmdarima's aicc() counts n = len(y) = {n}; its aic and bic are statsmodels' "
-                "(n = observations after the burn-in)"
+                "(n = observations after the burn-in)",
+                *([_statespace.REGRESSION_NOTE + "; passed as X="] if spec.regressors else []),
             ],
             overridden_defaults={} if spec.mean else {"with_intercept": True},
             native=model,
@@ -111,15 +116,24 @@ class PmdarimaArima(EstimatorAdapter):
 
     def _loglike_at(self, request: FitRequest, params: dict[str, float]) -> float:
         # The SARIMAX model pmdarima's fit would build from the same estimator settings.
-        model = pmdarima_sarimax(self._estimator(request.spec), request.y)
+        x = request.regressor_frame() if request.spec.regressors else None
+        model = pmdarima_sarimax(self._estimator(request.spec), request.y, x)
         return _statespace.model_loglike(model, request.spec, params, "intercept")
 
-    def _forecast(self, native, steps: int, levels: tuple[float, ...]) -> ForecastOutput:  # type: ignore[no-untyped-def]
+    def _forecast(
+        self, native, steps: int, levels: tuple[float, ...], future=None
+    ) -> ForecastOutput:  # type: ignore[no-untyped-def]
+        import pandas as pd
+
         lower, upper = {}, {}
         mean = None
+        x = None
+        if future is not None:
+            columns = list(native.arima_res_.model.exog_names)[-future.shape[1] :]
+            x = pd.DataFrame(future, columns=columns)
         for level in levels:
             mean, bounds = native.predict(
-                n_periods=steps, return_conf_int=True, alpha=1.0 - level / 100.0
+                n_periods=steps, X=x, return_conf_int=True, alpha=1.0 - level / 100.0
             )
             bounds = np.asarray(bounds)
             lower[level], upper[level] = bounds[:, 0], bounds[:, 1]

@@ -13,7 +13,7 @@ import importlib.metadata
 import math
 from abc import ABC, abstractmethod
 from dataclasses import dataclass, field
-from typing import Any, ClassVar
+from typing import Any, ClassVar, Literal
 
 import numpy as np
 
@@ -42,6 +42,16 @@ class Capabilities:
     regressors : bool
         Whether regressors (regression with ARIMA errors) are accepted. A spec with
         regressors and an adapter without this is ``unsupported``.
+    regression_form : {"levels", "differences", ""}
+        How the library regresses, measured: ``"levels"`` is the canonical regression of the
+        series on the regressors in levels with ARIMA errors (the regressors differenced
+        with the series); ``"differences"`` regresses the differenced series on the
+        regressors as given, a different model, so a spec with regressors and differencing
+        is ``unsupported`` there. Empty without regressors.
+    constant_separate : bool
+        Whether the library's constant (intercept, mean or drift) is a term of its own
+        beside the regression coefficients, as ``mu`` is here (rather than a column the user
+        must add to the regressors).
     forecast : bool
         Whether the adapter forecasts, with intervals, from its own fit
         (:meth:`EstimatorAdapter._forecast`). Without it no forecast is asked for.
@@ -58,6 +68,8 @@ class Capabilities:
 
     mean_differences: frozenset[int] = frozenset()
     regressors: bool = False
+    regression_form: Literal["levels", "differences", ""] = ""
+    constant_separate: bool = True
     forecast: bool = True
     own_loglike: bool = False
     forecast_at_params: bool = False
@@ -67,6 +79,8 @@ class Capabilities:
         return {
             "mean_differences": sorted(self.mean_differences),
             "regressors": self.regressors,
+            "regression_form": self.regression_form,
+            "constant_separate": self.constant_separate,
             "forecast": self.forecast,
             "own_loglike": self.own_loglike,
             "forecast_at_params": self.forecast_at_params,
@@ -83,10 +97,29 @@ class FitRequest:
         The series after the transform (the adapter gets its own copy).
     spec : ModelSpec
         The model to fit.
+    regressors : numpy.ndarray or None
+        The regressor values, shape ``(n, k)``, columns in ``spec.regressors`` order (not
+        transformed); None when the spec has none.
     """
 
     y: np.ndarray
     spec: ModelSpec
+    regressors: np.ndarray | None = None
+
+    def copy(self) -> FitRequest:
+        """A request with its own copies of the arrays (what an adapter is handed)."""
+        return FitRequest(
+            np.array(self.y, dtype=float, copy=True),
+            self.spec,
+            None if self.regressors is None else np.array(self.regressors, dtype=float),
+        )
+
+    def regressor_frame(self, rows: np.ndarray | None = None) -> Any:
+        """The regressors (or ``rows`` of future values) as a DataFrame named by the spec."""
+        import pandas as pd
+
+        values = self.regressors if rows is None else rows
+        return pd.DataFrame(np.asarray(values, dtype=float), columns=list(self.spec.regressors))
 
     @property
     def n_w(self) -> int:
@@ -226,6 +259,23 @@ def _forecast_from(key: str, steps: int, levels: tuple[float, ...], call: _Captu
     )
 
 
+def _regressor_problem(request: FitRequest) -> str:
+    """Why the request's regressors do not fit its spec, or an empty string."""
+    k = len(request.spec.regressors)
+    x = request.regressors
+    if not k:
+        return "" if x is None else "regressor values were given, but the spec names none"
+    if x is None:
+        return f"the spec names {k} regressor(s) but no regressor values were given"
+    shape = np.shape(x)
+    if len(shape) != 2 or shape[1] != k or shape[0] != len(request.y):
+        return (
+            f"the regressor values have shape {shape}; the spec needs ({len(request.y)}, {k}) "
+            "(one row per observation, one column per regressor)"
+        )
+    return ""
+
+
 class LibraryBound:
     """Version and availability of the library an adapter calls (``package``, ``module``).
 
@@ -297,8 +347,14 @@ class EstimatorAdapter(LibraryBound, ABC):
                 f"d + D = {spec.n_differences} (it can with d + D in "
                 f"{sorted(caps.mean_differences) or 'no case'})."
             )
-        if spec.exog and not caps.regressors:
+        if spec.regressors and not caps.regressors:
             return f"{self.description} does not take regressors."
+        if spec.regressors and caps.regression_form == "differences" and spec.n_differences:
+            return (
+                f"{self.description} regresses the differenced series on the regressors as "
+                "given, a different model from the regression on the levels with ARIMA errors "
+                "that the spec asks for; no conversion of its coefficients exists."
+            )
         return None
 
     def _base(self, spec: ModelSpec) -> dict[str, Any]:
@@ -334,7 +390,10 @@ class EstimatorAdapter(LibraryBound, ABC):
                     f"{spec.lost_to_differencing} used up by differencing; nothing was fitted"
                 ),
             )
-        own = FitRequest(np.array(request.y, dtype=float, copy=True), spec)
+        problem = _regressor_problem(request)
+        if problem:
+            return Estimate(**base, status="failed", reason=problem)
+        own = request.copy()
         call = _run_captured(self._fit, own)
         if call.failed:
             return Estimate(**base, **call.failure("fit"))
@@ -408,12 +467,20 @@ class EstimatorAdapter(LibraryBound, ABC):
         """Translate the spec, call the library on ``request.y``, translate the result."""
 
     # ------------------------------------------------------------------ forecasts
-    def forecast(self, estimate: Estimate, steps: int, levels: tuple[float, ...]) -> Forecast:
+    def forecast(
+        self,
+        estimate: Estimate,
+        steps: int,
+        levels: tuple[float, ...],
+        future_regressors: np.ndarray | None = None,
+    ) -> Forecast:
         """Forecast ``steps`` ahead from a fitted estimate, with intervals at ``levels`` (%).
 
         Uses the library's own forecast and interval method, as its users would; needs the
-        library's fitted object, so it runs where the fit ran. Never raises for a library
-        failure; the forecast's status says what happened.
+        library's fitted object, so it runs where the fit ran. With regressors,
+        ``future_regressors`` (shape ``(steps, k)``) are their values over the forecast
+        periods and are required. Never raises for a library failure; the forecast's status
+        says what happened.
         """
         if not self.capabilities.forecast:
             reason = f"{self.description} does not forecast (declared in its capabilities)"
@@ -421,7 +488,17 @@ class EstimatorAdapter(LibraryBound, ABC):
         if not estimate.ok or estimate.native is None:
             reason = f"no fitted model to forecast from ({estimate.status})"
             return Forecast(self.key, "failed", steps, levels, reason=reason)
-        call = _run_captured(self._forecast, estimate.native, steps, levels)
+        if estimate.spec is not None and estimate.spec.regressors:
+            if future_regressors is None or len(future_regressors) < steps:
+                reason = (
+                    f"forecasting {steps} steps with regressors needs their {steps} future "
+                    "values; none or too few were given"
+                )
+                return Forecast(self.key, "failed", steps, levels, reason=reason)
+            future = np.array(future_regressors[:steps], dtype=float)
+            call = _run_captured(self._forecast, estimate.native, steps, levels, future=future)
+        else:  # adapters written before regressors take three arguments
+            call = _run_captured(self._forecast, estimate.native, steps, levels)
         return _forecast_from(self.key, steps, levels, call)
 
     def loglike_at(self, request: FitRequest, params: dict[str, float]) -> float:
@@ -436,9 +513,7 @@ class EstimatorAdapter(LibraryBound, ABC):
             When the adapter does not declare ``own_loglike``.
         """
         self._require("own_loglike", "evaluate its own likelihood at given parameters")
-        call = _run_captured(
-            self._loglike_at, FitRequest(np.array(request.y, dtype=float), request.spec), params
-        )
+        call = _run_captured(self._loglike_at, request.copy(), params)
         return math.nan if call.failed else float(call.result)
 
     def forecast_at(
@@ -448,11 +523,30 @@ class EstimatorAdapter(LibraryBound, ABC):
         params: dict[str, float],
         steps: int,
         levels: tuple[float, ...],
+        *,
+        regressors: np.ndarray | None = None,
+        future_regressors: np.ndarray | None = None,
     ) -> Forecast:
-        """Filter ``y`` at given canonical parameters and forecast (``forecast_at_params``)."""
+        """Filter ``y`` at given canonical parameters and forecast (``forecast_at_params``).
+
+        With regressors in the spec, ``regressors`` (``(n, k)``) and ``future_regressors``
+        (``(steps, k)``) are their values over the sample and the forecast periods.
+        """
         self._require("forecast_at_params", "forecast at given parameters")
+        extra: dict[str, Any] = {}
+        if spec.regressors:
+            extra = {
+                "regressors": np.array(regressors, dtype=float),
+                "future": np.array(future_regressors, dtype=float),
+            }
         call = _run_captured(
-            self._forecast_at, np.array(y, dtype=float, copy=True), spec, params, steps, levels
+            self._forecast_at,
+            np.array(y, dtype=float, copy=True),
+            spec,
+            params,
+            steps,
+            levels,
+            **extra,
         )
         return _forecast_from(self.key, steps, levels, call)
 
@@ -461,8 +555,18 @@ class EstimatorAdapter(LibraryBound, ABC):
         if not getattr(self.capabilities, capability):
             raise EstimatorError(f"{self.key} cannot {action}.")
 
-    def _forecast(self, native: Any, steps: int, levels: tuple[float, ...]) -> ForecastOutput:
-        """Forecast with the library from its fitted object ``native``."""
+    def _forecast(
+        self,
+        native: Any,
+        steps: int,
+        levels: tuple[float, ...],
+        future: np.ndarray | None = None,
+    ) -> ForecastOutput:
+        """Forecast with the library from its fitted object ``native``.
+
+        ``future`` (the regressors over the forecast periods, ``(steps, k)``) is passed only
+        when the spec has regressors.
+        """
         raise NotImplementedError(f"{self.key} does not forecast")
 
     def _loglike_at(self, request: FitRequest, params: dict[str, float]) -> float:

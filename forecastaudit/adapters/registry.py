@@ -35,6 +35,7 @@ __all__ = [
     "register",
     "register_estimator",
     "register_search",
+    "register_transient",
 ]
 
 #: The entry-point group third-party distributions use to add adapters.
@@ -56,6 +57,9 @@ _BUILT_IN: dict[str, tuple[str, ...]] = {
 }
 
 _REGISTRY: dict[tuple[str, str], type] = {}
+#: Adapters made for one audit (an estimator in another environment): found by key, never
+#: listed, so that they join only the audits that ask for them.
+_TRANSIENT: dict[tuple[str, str], type] = {}
 _PROBLEMS: dict[str, str] = {}
 #: Registry keys each entry point added, so that a refresh can forget a removed one.
 _FROM_ENTRY_POINTS: dict[str, set[tuple[str, str]]] = {}
@@ -85,6 +89,25 @@ def register(cls: type[T]) -> type[T]:
             f"{_qualified(cls)} cannot take it too. Give one of them another key."
         )
     _REGISTRY[(kind, key)] = cls
+    return cls
+
+
+def register_transient(cls: type[T]) -> type[T]:
+    """Make an adapter class findable by its key without listing it among the estimators.
+
+    For adapters an audit makes on request (an estimator in another Python environment):
+    :func:`adapter_class` finds them, :func:`available_estimators` does not list them.
+
+    Raises
+    ------
+    EstimatorError
+        When a listed adapter holds the key already.
+    """
+    key, kind = getattr(cls, "key", None), getattr(cls, "kind", None)
+    _load()
+    if (kind, key) in _REGISTRY:
+        raise EstimatorError(f"The {kind} adapter key {key!r} is taken by a registered adapter.")
+    _TRANSIENT[(str(kind), str(key))] = cls
     return cls
 
 
@@ -181,6 +204,9 @@ def adapter_class(key: str, kind: Kind = "fit") -> type:
     try:
         return _REGISTRY[(kind, key)]
     except (KeyError, TypeError):
+        transient = _TRANSIENT.get((kind, key)) if isinstance(key, str) else None
+        if transient is not None:
+            return transient
         what, plural = (
             ("estimator", "estimators") if kind == "fit" else ("order search", "searches")
         )

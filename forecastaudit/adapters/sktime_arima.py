@@ -4,6 +4,8 @@ statsmodels SARIMAX).
 Spec -> call: orders and period from the spec; ``with_intercept`` set from the spec's mean,
 explicitly, because the library default (True) adds an intercept c for any differencing.
 sktime needs a pandas Series; a positional index is used, the values are those given.
+Regressors go in as ``X`` (a DataFrame on the same positional index; the future values on
+the positions after it), passed on to pmdarima and statsmodels' SARIMAX ``exog``.
 
 Own likelihood at given parameters: sktime's fit hands its own pmdarima ``ARIMA`` (built by
 the forecaster from its settings, including the SARIMAX options sktime passes explicitly:
@@ -41,6 +43,8 @@ class SktimeArima(EstimatorAdapter):
     description = "sktime ARIMA forecaster"
     capabilities = Capabilities(
         mean_differences=frozenset(range(0, 6)),
+        regressors=True,
+        regression_form="levels",
         own_loglike=True,
     )
 
@@ -60,7 +64,10 @@ class SktimeArima(EstimatorAdapter):
         y, spec = request.y, request.spec
 
         forecaster = self._forecaster(spec)
-        forecaster.fit(pd.Series(y))
+        if spec.regressors:
+            forecaster.fit(pd.Series(y), X=request.regressor_frame())
+        else:
+            forecaster.fit(pd.Series(y))
         fitted = forecaster.get_fitted_params()
         criteria = {name: float(fitted[name]) for name in ("aic", "aicc", "bic") if name in fitted}
         result = forecaster._forecaster.arima_res_  # the pmdarima model sktime holds
@@ -70,7 +77,10 @@ class SktimeArima(EstimatorAdapter):
             "intercept",
             options={"sktime": dict(forecaster.get_params())},
             criteria=criteria,
-            notes=["sktime reports statsmodels' aic, aicc and bic (not pmdarima's aicc)"],
+            notes=[
+                "sktime reports statsmodels' aic, aicc and bic (not pmdarima's aicc)",
+                *([_statespace.REGRESSION_NOTE + "; passed as X="] if spec.regressors else []),
+            ],
             overridden_defaults={} if spec.mean else {"with_intercept": True},
             native=forecaster,
         )
@@ -79,14 +89,24 @@ class SktimeArima(EstimatorAdapter):
         # The pmdarima estimator sktime's fit would create (its private factory, the one
         # its fit calls), and the SARIMAX model that estimator builds.
         estimator = self._forecaster(request.spec)._instantiate_model()
-        model = pmdarima_sarimax(estimator, request.y)
+        x = request.regressor_frame() if request.spec.regressors else None
+        model = pmdarima_sarimax(estimator, request.y, x)
         return _statespace.model_loglike(model, request.spec, params, "intercept")
 
-    def _forecast(self, native, steps: int, levels: tuple[float, ...]) -> ForecastOutput:  # type: ignore[no-untyped-def]
+    def _forecast(
+        self, native, steps: int, levels: tuple[float, ...], future=None
+    ) -> ForecastOutput:  # type: ignore[no-untyped-def]
+        import pandas as pd
+
         fh = list(range(1, steps + 1))
-        mean = np.asarray(native.predict(fh=fh), dtype=float)
+        x = None
+        if future is not None:
+            start = len(native._y)  # the positions after the fitted series
+            columns = list(native._X.columns)
+            x = pd.DataFrame(future, columns=columns, index=pd.RangeIndex(start, start + steps))
+        mean = np.asarray(native.predict(fh=fh, X=x), dtype=float)
         coverage = [level / 100.0 for level in levels]
-        intervals = native.predict_interval(fh=fh, coverage=coverage)
+        intervals = native.predict_interval(fh=fh, X=x, coverage=coverage)
         lower, upper = {}, {}
         for level, cov in zip(levels, coverage, strict=True):
             columns = [c for c in intervals.columns if abs(float(c[1]) - cov) < 1e-12]

@@ -4,7 +4,9 @@ Spec -> call: orders and period from the spec. The constant is a regression with
 errors: ``trend='c'`` (a mean equal to mu) without differencing, and with d + D = s > 0 a
 trend on ``t^s`` alone (``trend='t'`` for s = 1), whose coefficient b gives
 mu = s! m^D b. Without a mean the trend is ``'n'``, passed explicitly because the library
-adds a constant by default when d + D = 0.
+adds a constant by default when d + D = 0. Regressors are passed as ``exog`` (a DataFrame
+named by the spec): the library regresses on the levels with ARIMA errors and puts its trend
+columns first among the regression terms, so the regressors are mapped back by position.
 
 Own likelihood at given parameters: ``model.loglike(vector)`` on the model built exactly as
 for the fit (the same default approximate diffuse prior and burn-in of d + mD observations),
@@ -13,8 +15,6 @@ trend coefficient b = mu / (s! m^D)) and sigma2 as given.
 """
 
 from __future__ import annotations
-
-import numpy as np
 
 from forecastaudit.adapters import _statespace
 from forecastaudit.adapters.protocol import (
@@ -49,15 +49,19 @@ class StatsmodelsArima(EstimatorAdapter):
     description = "statsmodels tsa.arima ARIMA"
     capabilities = Capabilities(
         mean_differences=frozenset(range(0, 6)),
+        regressors=True,
+        regression_form="levels",
         own_loglike=True,
     )
 
     @staticmethod
-    def _model(y: np.ndarray, spec: ModelSpec):  # type: ignore[no-untyped-def]
+    def _model(request: FitRequest):  # type: ignore[no-untyped-def]
         from statsmodels.tsa.arima.model import ARIMA
 
+        spec = request.spec
         return ARIMA(
-            y,
+            request.y,
+            exog=request.regressor_frame() if spec.regressors else None,
             order=spec.order,
             seasonal_order=(*spec.seasonal, spec.period or 0),
             trend=_trend_for(spec),
@@ -73,21 +77,28 @@ class StatsmodelsArima(EstimatorAdapter):
         return mean_kind, constant
 
     def _fit(self, request: FitRequest) -> FitOutput:
-        y, spec = request.y, request.spec
-        model = self._model(y, spec)
+        spec = request.spec
+        model = self._model(request)
         result = model.fit()
         mean_kind, constant = self._mean_of(model, spec)
         # The library adds a constant by default when d + D = 0; the spec decides instead.
         overridden = {"trend": "c"} if spec.n_differences == 0 and not spec.mean else {}
         return _statespace.to_fit_output(
-            result, spec, mean_kind, constant_name=constant, overridden_defaults=overridden
+            result,
+            spec,
+            mean_kind,
+            constant_name=constant,
+            overridden_defaults=overridden,
+            notes=[_statespace.REGRESSION_NOTE] if spec.regressors else [],
         )
 
     def _loglike_at(self, request: FitRequest, params: dict[str, float]) -> float:
         # The same model object as the fit: its own prior, burn-in and regression constant.
-        model = self._model(request.y, request.spec)
+        model = self._model(request)
         mean_kind, constant = self._mean_of(model, request.spec)
         return _statespace.model_loglike(model, request.spec, params, mean_kind, constant)
 
-    def _forecast(self, native, steps: int, levels: tuple[float, ...]) -> ForecastOutput:  # type: ignore[no-untyped-def]
-        return _statespace.statespace_forecast(native, steps, levels)
+    def _forecast(
+        self, native, steps: int, levels: tuple[float, ...], future=None
+    ) -> ForecastOutput:  # type: ignore[no-untyped-def]
+        return _statespace.statespace_forecast(native, steps, levels, future)

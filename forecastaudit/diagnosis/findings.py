@@ -20,6 +20,10 @@ SEVERITIES: tuple[Severity, ...] = ("info", "warn", "fail")
 
 KINDS: dict[str, str] = {
     "unavailable": "The estimator's package is not installed, so it took no part.",
+    "input-precision": (
+        "Some observations could not be held exactly as 64-bit floating-point numbers "
+        "(integers beyond 2**53); every estimator, and the audit, used the rounded values."
+    ),
     "unsupported": "The estimator cannot fit this specification; nothing was fitted.",
     "fit-failed": "The estimator raised an error or returned nothing usable.",
     "not-converged": "The estimator's own optimiser did not report convergence.",
@@ -125,6 +129,11 @@ KINDS: dict[str, str] = {
         "model depends on which one is used."
     ),
     "ranking-stable": "Every implementation ranks the candidate models the same way.",
+    "declared-conventions": (
+        "Whether the conventions declared for an imported estimate (MA sign, constant, "
+        "sigma2, log-likelihood scale) make its reported log-likelihood equal the reference "
+        "log-likelihood at its parameters; when they do not, which declarations would."
+    ),
 }
 
 

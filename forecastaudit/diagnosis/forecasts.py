@@ -128,18 +128,22 @@ def spread_band(
     engines: Mapping[str, str],
     reference_key: str,
     level: float,
-) -> pd.DataFrame:
+) -> pd.DataFrame | None:
     """Per horizon, the range of point forecasts across independent engines.
 
     One forecast per engine (the first in order) enters, so wrappers of one engine do not
     widen or narrow the band; the forecast at the reference optimum is not an
     implementation and does not enter. Beside it, the reference forecast's interval width
     at ``level`` and the share of that width that the implementation spread takes.
+    None when no implementation forecast (every chosen estimator failed, was unsupported
+    or unavailable): there is no spread to measure, and the audit goes on without it.
     """
     chosen: dict[str, OriginalScaleForecast] = {}
     for key, fc in forecasts.items():
         if key != reference_key:
             chosen.setdefault(engines[key], fc)
+    if not chosen:
+        return None
     stacked = np.vstack([fc.median for fc in chosen.values()])
     ref = forecasts.get(reference_key)
     low, high = stacked.min(axis=0), stacked.max(axis=0)

@@ -124,6 +124,7 @@ def run_holdout(
     backend: Backend | int | None = None,
     time_limit: float | None = DEFAULT_TIME_LIMIT,
     progress: bool = False,
+    regressors: np.ndarray | None = None,
 ) -> HoldoutResult:
     """Fit on the training part and forecast the held-out part, at each origin.
 
@@ -135,7 +136,9 @@ def run_holdout(
     values : array
         The series on the original scale.
     reference_forecaster : callable, optional
-        ``f(train_transformed, estimates, horizon) -> Forecast`` for the reference optimum.
+        ``f(train_transformed, estimates, horizon) -> Forecast`` for the reference optimum;
+        with regressors it is also given ``regressors=`` (the training rows) and
+        ``future_regressors=`` (the held-out rows) as keywords.
     engines : mapping of str to str, optional
         Estimator key -> engine (lineage). Accuracy is scored for every estimator, but the
         pairwise Diebold-Mariano comparisons are made only between independent engines:
@@ -150,6 +153,11 @@ def run_holdout(
         Seconds one fit may take where the backend can stop it.
     progress : bool
         Show a progress bar (tqdm) over the fits.
+    regressors : numpy.ndarray, optional
+        The regressor values over the whole series, ``(n, k)``, when the spec has
+        regressors: each origin fits on the rows before it and forecasts with the held-out
+        rows as the future values (known in advance, as calendar effects and planned prices
+        are; a forecast that must also predict its regressors is not what is scored).
     """
     n = values.size
     starts = [n - horizon * (origins - i) for i in range(origins)]
@@ -161,11 +169,22 @@ def run_holdout(
     trains = [
         prepare_series(values[:start], period=spec.period).transformed(spec) for start in starts
     ]
+
+    def rows(start: int, stop: int) -> np.ndarray | None:
+        return None if regressors is None else np.array(regressors[start:stop], dtype=float)
+
     tasks = [
         task
         for start, train_t in zip(starts, trains, strict=True)
         for task in fit_tasks(
-            keys, train_t, spec, steps=horizon, levels=levels, label=f"origin {start}"
+            keys,
+            train_t,
+            spec,
+            steps=horizon,
+            levels=levels,
+            label=f"origin {start}",
+            regressors=rows(0, start),
+            future_regressors=rows(start, start + horizon),
         )
     ]
     outcomes = run_fits(
@@ -189,7 +208,16 @@ def run_holdout(
                 continue
             forecasts[key] = back_transform(fc, spec)
         if reference_forecaster is not None:
-            ref = reference_forecaster(train_t, estimates, horizon)
+            if regressors is None:
+                ref = reference_forecaster(train_t, estimates, horizon)
+            else:
+                ref = reference_forecaster(
+                    train_t,
+                    estimates,
+                    horizon,
+                    regressors=rows(0, start),
+                    future_regressors=rows(start, start + horizon),
+                )
             if ref is not None and ref.ok:
                 forecasts[reference_key] = back_transform(ref, spec)
         per_origin.append(forecasts)

@@ -8,10 +8,14 @@ from __future__ import annotations
 
 import dataclasses
 import math
+import numbers
 from dataclasses import dataclass
 from typing import Any
 
+import numpy as np
+
 from forecastaudit.errors import ToleranceError
+from forecastaudit.validation import echo, whole_number
 
 __all__ = ["Tolerances"]
 
@@ -166,14 +170,20 @@ class Tolerances:
                     raise ToleranceError(f"{item.name} must be True or False, got {value!r}.")
                 continue
             if item.name == "min_independent_engines":
-                if isinstance(value, bool) or not isinstance(value, int) or value < 1:
-                    raise ToleranceError(
-                        f"min_independent_engines must be a whole number of at least 1, "
-                        f"got {value!r}."
-                    )
+                # A fraction is refused, not truncated: 1.7 engines must not become 1.
+                count = whole_number(
+                    value,
+                    "min_independent_engines",
+                    minimum=1,
+                    error=ToleranceError,
+                    example="2",
+                )
+                object.__setattr__(self, item.name, count)
                 continue
-            if isinstance(value, bool) or not isinstance(value, int | float):
-                raise ToleranceError(f"Tolerance {item.name} must be a number, got {value!r}.")
+            if isinstance(value, bool | np.bool_) or not isinstance(value, numbers.Real):
+                raise ToleranceError(f"Tolerance {item.name} must be a number, got {echo(value)}.")
+            value = float(value)
+            object.__setattr__(self, item.name, value)
             if not math.isfinite(value) or value < 0:
                 raise ToleranceError(
                     f"Tolerance {item.name} must be finite and not negative, got {value!r}."
@@ -242,9 +252,12 @@ def parse_overrides(items: list[str] | tuple[str, ...] | None, *, where: str) ->
         except ValueError:
             raise ToleranceError(f"{where} {name}: {value!r} is not a number.") from None
         if name == "min_independent_engines":
-            if not number.is_integer():
-                raise ToleranceError(f"{where} {name}: {value!r} is not a whole number of engines.")
-            out[name] = int(number)
+            if not number.is_integer() or not value.strip().lstrip("+").isdigit():
+                raise ToleranceError(
+                    f"{where} {name}: {echo(value)} is not a whole number of engines; write "
+                    "e.g. min_independent_engines=2."
+                )
+            out[name] = int(value)
         else:
             out[name] = number
     return out

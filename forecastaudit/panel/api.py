@@ -12,7 +12,7 @@ from typing import Any
 
 from forecastaudit.adapters.registry import adapter_class, available_estimators, get_adapter
 from forecastaudit.diagnosis.tolerances import Tolerances
-from forecastaudit.errors import EstimatorError
+from forecastaudit.errors import EstimatorError, SpecError
 from forecastaudit.panel.data import PanelSeries, read_panel
 from forecastaudit.panel.result import PanelResult
 from forecastaudit.panel.store import MemoryStore, PanelStore
@@ -20,6 +20,7 @@ from forecastaudit.panel.summary import count_causes, summary_frame
 from forecastaudit.panel.unit import SeriesJob, audit_series
 from forecastaudit.run import Backend, default_workers, make_backend
 from forecastaudit.spec import ModelSpec
+from forecastaudit.validation import whole_number
 
 __all__ = ["DEFAULT_SERIES_TIME_LIMIT", "audit_panel", "independent_estimators"]
 
@@ -208,8 +209,15 @@ def audit_panel(
     level_tuple = _check_levels(levels)
     steps = _check_steps(horizon, "horizon") if horizon is not None else None
     if holdout is not None:
-        _check_steps(holdout, "holdout")
-        _check_steps(origins, "origins")
+        holdout = _check_steps(holdout, "holdout")
+        origins = whole_number(origins, "origins", minimum=1, example="3")
+    elif whole_number(origins, "origins", minimum=1, example="3") != 1:
+        raise SpecError(
+            f"origins={origins} has no effect without holdout: pass holdout=H to score "
+            "forecasts at each origin, or leave origins at 1."
+        )
+    if period is not None:
+        period = whole_number(period, "period", minimum=1, example="12 for monthly data")
     panel = read_panel(
         data, spec, id_column=id_column, time_column=time_column, value_column=value_column
     )
@@ -222,6 +230,8 @@ def audit_panel(
         "holdout": holdout,
         "origins": origins,
         "period": period,
+        # The likelihood surface is drawn in a failing series' report, the only one written.
+        "likelihood_grid": "on-failure",
     }
     settings = _settings(options, keys)
     folder = Path(out) if out is not None else None

@@ -79,33 +79,22 @@ def _check_id(raw: Any) -> str:
 
 
 def _as_time_index(values: pd.Series, column: str) -> pd.Index:
-    """The time column as a PeriodIndex or DatetimeIndex (all values must be times)."""
-    if isinstance(values.dtype, pd.PeriodDtype):
-        return pd.PeriodIndex(values)
-    if pd.api.types.is_datetime64_any_dtype(values):
-        return pd.DatetimeIndex(values)
-    if pd.api.types.is_numeric_dtype(values):
+    """The time column as a PeriodIndex or DatetimeIndex (all values must be times).
+
+    Read as one series' file is read (:func:`forecastaudit.reading.parse_time_column`):
+    periods written as text (``2011-01``, ``1998Q1``) are periods, numbers are never taken
+    for timestamps, and timestamps with different UTC offsets are refused rather than
+    shifted into one zone (where monthly dates would stop being regular).
+    """
+    from forecastaudit.errors import SeriesError
+    from forecastaudit.reading import parse_time_column
+
+    try:
+        return parse_time_column(values, column, "the panel table")
+    except SeriesError as exc:
         raise PanelError(
-            f"The time column {column!r} holds numbers, not dates or periods; give dates "
-            "(2011-01-31 or 2011-01) or name the right column with time_column."
-        )
-    text = values.astype(str).str.strip()
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")  # pandas' "could not infer format" notice
-        try:
-            return pd.PeriodIndex(text, freq=None)
-        except (ValueError, TypeError):
-            pass
-        parsed = pd.to_datetime(text, errors="coerce")
-    if parsed.isna().any():
-        bad = text[parsed.isna()].iloc[0]
-        raise PanelError(
-            f"The time column {column!r} has a value that is not a date: {bad!r}; fix it or "
-            "name the right column with time_column."
-        )
-    if getattr(parsed.dt, "tz", None) is not None:
-        parsed = parsed.dt.tz_convert("UTC").dt.tz_localize(None)
-    return pd.DatetimeIndex(parsed)
+            f"{exc} Name the right column with time_column (--time-column) if this is not it."
+        ) from None
 
 
 def _regular(index: pd.Index) -> pd.Index:
@@ -172,16 +161,10 @@ def _pick_columns(
 
 
 def _looks_like_time(values: pd.Series) -> bool:
-    if isinstance(values.dtype, pd.PeriodDtype) or pd.api.types.is_datetime64_any_dtype(values):
-        return True
-    if pd.api.types.is_numeric_dtype(values) or pd.api.types.is_bool_dtype(values):
-        return False
-    sample = values.dropna().astype(str).head(50)
-    if sample.empty:
-        return False
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")
-        return bool(pd.to_datetime(sample, errors="coerce").notna().all())
+    """Whether a column holds dates or periods (as :mod:`forecastaudit.reading` decides)."""
+    from forecastaudit.reading import looks_like_dates
+
+    return looks_like_dates(values)
 
 
 def _from_frame(

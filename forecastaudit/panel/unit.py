@@ -160,12 +160,24 @@ def summary_row(result: Any) -> dict[str, Any]:
 SKETCH_HISTORY = 36
 
 
+def _period_labels(index: Any) -> list[str]:
+    """Dates as periods (``2024-01``, ``2024Q1``) where the index has a regular frequency."""
+    import pandas as pd
+
+    if isinstance(index, pd.DatetimeIndex) and index.freq is not None:
+        try:
+            index = index.to_period(index.freq)
+        except (ValueError, TypeError):  # a frequency with no period form (e.g. business days)
+            pass
+    return [str(v) for v in index]
+
+
 def sketch(result: Any) -> dict[str, Any]:
     """The end of the series and every estimator's forecast, for the panel report's plot."""
     series = result.series
     values = series.values[-SKETCH_HISTORY:]
     index = series.index
-    labels = [str(v) for v in index[-SKETCH_HISTORY:]] if index is not None else []
+    labels = _period_labels(index[-SKETCH_HISTORY:]) if index is not None else []
     forecasts = {}
     for key, fc in result.forecasts.items():
         widest = max(fc.lower) if fc.lower else None

@@ -1,10 +1,12 @@
 """The audit record: a versioned, schema-validated JSON document, and changes between two.
 
+``RecordDrift`` is the old name of :class:`RecordChanges`, kept for one release (it warns).
+
 :mod:`.document` builds, seals, validates, writes and loads a record; :mod:`.changes`
 compares two records.
 """
 
-from forecastaudit.record.changes import RecordDrift, compare_records
+from forecastaudit.record.changes import RecordChanges, compare_records
 from forecastaudit.record.document import (
     RECORD_KIND,
     SCHEMA_VERSION,
@@ -19,7 +21,7 @@ from forecastaudit.record.document import (
 __all__ = [
     "RECORD_KIND",
     "SCHEMA_VERSION",
-    "RecordDrift",
+    "RecordChanges",
     "build_record",
     "compare_records",
     "content_digest",
@@ -28,3 +30,11 @@ __all__ = [
     "provenance",
     "validate_record",
 ]
+
+
+def __getattr__(name: str) -> object:
+    if name == "RecordDrift":
+        from forecastaudit.record import changes
+
+        return changes.RecordDrift
+    raise AttributeError(f"module 'forecastaudit.record' has no attribute {name!r}")

@@ -1,4 +1,4 @@
-"""Drift between two audit records: what moved, by how much, against which tolerance.
+"""Changes between two audit records: what moved, by how much, against which tolerance.
 
 This is what a reviewer attaches to a library-upgrade or re-fit change request: the signed-off
 record on one side, the new one on the other. Records are read with
@@ -16,16 +16,31 @@ import pandas as pd
 
 from forecastaudit.diagnosis.tolerances import Tolerances
 from forecastaudit.errors import RecordError
-from forecastaudit.record.document import load_record
+from forecastaudit.record.document import check_record, load_record
 
-__all__ = ["RecordDrift", "compare_records"]
+__all__ = ["RecordChanges", "compare_records"]
+
+
+def __getattr__(name: str) -> object:
+    # The old name, kept for one release.
+    if name == "RecordDrift":
+        import warnings
+
+        warnings.warn(
+            "RecordDrift is now called RecordChanges; the old name goes in the next release.",
+            DeprecationWarning,
+            stacklevel=2,
+        )
+        return RecordChanges
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+
 
 _COLUMNS = ["estimator", "quantity", "old", "new", "change", "tolerance", "beyond"]
 
 
 @dataclass
-class RecordDrift:
-    """The drift between two records.
+class RecordChanges:
+    """The changes between two records (formerly ``RecordDrift``).
 
     Attributes
     ----------
@@ -67,20 +82,28 @@ class RecordDrift:
         return self.verdict != "drift beyond tolerance"
 
     def __str__(self) -> str:
-        lines = [f"Drift between records: {self.verdict.upper()}"]
-        lines.append(
-            "Data: the same (equal fingerprints)."
-            if self.same_data
-            else "Data: DIFFERENT (the fingerprints differ): changes mix data and numerics."
-        )
-        if not self.same_spec:
-            lines.append("Specification: DIFFERENT; quantities are compared by name only.")
-        lines.append(f"Verdict of the audits: {self.old_verdict} -> {self.new_verdict}")
+        from forecastaudit.report.record_changes import summary_lines
+
+        lines = summary_lines(self)  # the summary first
+        lines[0] = lines[0].upper()
         lines += [f"- {c}" for c in self.changes]
         if not self.table.empty:
+            table = self.table.sort_values("beyond", ascending=False, kind="stable")
             with pd.option_context("display.width", 140, "display.max_rows", 200):
-                lines += ["", self.table.to_string(index=False)]
+                lines += ["", table.to_string(index=False)]
         return "\n".join(lines)
+
+    def to_markdown(self) -> str:
+        """The changes as Markdown: the summary first, then settings and quantities."""
+        from forecastaudit.report.record_changes import render_changes_markdown
+
+        return render_changes_markdown(self)
+
+    def to_html(self) -> str:
+        """The changes as one self-contained HTML page, summary first."""
+        from forecastaudit.report.record_changes import render_changes_html
+
+        return render_changes_html(self)
 
     def to_dict(self) -> dict[str, Any]:
         """JSON-ready form."""
@@ -95,10 +118,25 @@ class RecordDrift:
         }
 
 
-def _load(record: dict[str, Any] | str | os.PathLike[str]) -> dict[str, Any]:
+def _load(
+    record: dict[str, Any] | str | os.PathLike[str],
+    which: str,
+    trusted_keys: Any = None,
+    require_signature: bool | None = None,
+) -> dict[str, Any]:
     if isinstance(record, dict):
-        return record
-    return load_record(record)
+        return check_record(
+            record,
+            f"The {which} record",
+            trusted_keys=trusted_keys,
+            require_signature=require_signature,
+        )
+    if not isinstance(record, str | os.PathLike):
+        raise RecordError(
+            f"The {which} record must be a record dict (from load_record or "
+            f"AuditResult.to_dict) or a path to one, not {type(record).__name__}."
+        )
+    return load_record(record, trusted_keys=trusted_keys, require_signature=require_signature)
 
 
 def _row(estimator: str, quantity: str, old: Any, new: Any, tolerance: float) -> dict | None:
@@ -128,6 +166,49 @@ def _row(estimator: str, quantity: str, old: Any, new: Any, tolerance: float) ->
     }
 
 
+def _step_offset(a: dict[str, Any], b: dict[str, Any]) -> int | None:
+    """How many periods the new series ends after the old one (None: cannot be matched)."""
+    da, db = a["provenance"]["data"], b["provenance"]["data"]
+    last_a, last_b = da.get("last"), db.get("last")
+    if last_a == last_b:
+        return 0
+    if isinstance(last_a, int) and isinstance(last_b, int):
+        return last_b - last_a
+    freq = db.get("frequency")
+    if not freq or freq != da.get("frequency"):
+        return None
+    try:
+        return int((pd.Period(str(last_b), freq=freq) - pd.Period(str(last_a), freq=freq)).n)
+    except (ValueError, TypeError, AttributeError, OverflowError):
+        pass
+    try:  # timestamps with a frequency that has no period alias (MS, ME, W-SUN, ...)
+        start, end = pd.Timestamp(str(last_a)), pd.Timestamp(str(last_b))
+        if end < start:
+            back = _step_offset(b, a)
+            return -back if back is not None else None
+        steps = pd.date_range(start, end, freq=freq)
+        return len(steps) - 1 if len(steps) and steps[-1] == end else None
+    except (ValueError, TypeError, AttributeError, OverflowError):
+        return None
+
+
+def _target(b: dict[str, Any], step: int) -> str:
+    """The period that step ``step`` of record ``b`` forecasts, as a label."""
+    data = b["provenance"]["data"]
+    last = data.get("last")
+    if isinstance(last, int):
+        return str(last + step)
+    freq = data.get("frequency")
+    try:
+        return str(pd.Period(str(last), freq=freq) + step)
+    except (ValueError, TypeError, AttributeError, OverflowError):
+        pass
+    try:
+        return str(pd.date_range(pd.Timestamp(str(last)), periods=step + 1, freq=freq)[-1].date())
+    except (ValueError, TypeError, AttributeError, OverflowError):
+        return f"step{step}"
+
+
 def _setting_changes(old: dict[str, Any], new: dict[str, Any]) -> list[str]:
     out = []
     for name, version in sorted(new["provenance"]["packages"].items()):
@@ -152,6 +233,16 @@ def _setting_changes(old: dict[str, Any], new: dict[str, Any]) -> list[str]:
         a, b = old["estimates"].get(key, {}), new["estimates"].get(key, {})
         if a.get("status") != b.get("status"):
             out.append(f"{key}: status {a.get('status', 'absent')} -> {b.get('status', 'absent')}")
+        # Versions of libraries installed here are listed once, by package, above; an
+        # estimate made elsewhere has a version of its own.
+        elsewhere = "fitted" not in (a.get("origin", "fitted"), b.get("origin", "fitted"))
+        if a and b and elsewhere and a.get("version") != b.get("version"):
+            out.append(f"{key}: version {a.get('version')} -> {b.get('version')}")
+        if a and b and a.get("origin", "fitted") != b.get("origin", "fitted"):
+            out.append(f"{key}: origin {a.get('origin', 'fitted')} -> {b.get('origin', 'fitted')}")
+        moved = _provenance_changes(a.get("provenance") or {}, b.get("provenance") or {})
+        if a and b and moved:
+            out.append(f"{key}: provenance changed ({'; '.join(moved)})")
         if a.get("options") != b.get("options") and a and b:
             moved = sorted(
                 k
@@ -162,11 +253,27 @@ def _setting_changes(old: dict[str, Any], new: dict[str, Any]) -> list[str]:
     return out
 
 
+def _provenance_changes(a: dict[str, Any], b: dict[str, Any], at: str = "") -> list[str]:
+    """What differs between two estimates' provenance (an import record's digest, another
+    environment's package versions), one entry per changed leaf."""
+    out = []
+    for name in sorted(set(a) | set(b)):
+        x, y = a.get(name), b.get(name)
+        where = f"{at}{name}"
+        if isinstance(x, dict) and isinstance(y, dict):
+            out += _provenance_changes(x, y, f"{where}.")
+        elif x != y:
+            out.append(f"{where} {x!r} -> {y!r}")
+    return out
+
+
 def compare_records(
     old: dict[str, Any] | str | os.PathLike[str],
     new: dict[str, Any] | str | os.PathLike[str],
     tolerances: Tolerances | None = None,
-) -> RecordDrift:
+    *,
+    trusted_keys: Any = None,
+) -> RecordChanges:
     """Compare two audit records of the same spec and data.
 
     Parameters
@@ -175,15 +282,72 @@ def compare_records(
         The signed-off record and the new one (paths are read with ``load_record``).
     tolerances : Tolerances, optional
         Tolerances for the drift; default those stated in the new record.
+    trusted_keys : public key or sequence of them, optional
+        Reviewers' Ed25519 public keys. When given, the old (signed-off) record must carry a
+        valid signature by one of them; the new record's signatures, if any, are checked too.
+
+    Both records are checked as :func:`~forecastaudit.load_record` checks a file (kind,
+    schema, seal); a dict that is not a validated record is refused.
+
+    Raises
+    ------
+    RecordError
+        When either record fails those checks.
 
     Returns
     -------
-    RecordDrift
+    RecordChanges
     """
-    a, b = _load(old), _load(new)
+    a = _load(old, "old", trusted_keys)
+    b = _load(new, "new")
+    if trusted_keys is not None and b.get("signatures"):
+        from forecastaudit.record.signing import verify_signatures
+
+        verify_signatures(b, trusted_keys, where="The new record")
+    return compare_loaded(a, b, tolerances)
+
+
+def compare_loaded(
+    a: dict[str, Any], b: dict[str, Any], tolerances: Tolerances | None = None
+) -> RecordChanges:
+    """Compare two records already read and checked (or parts of them kept for a baseline).
+
+    The comparison of :func:`compare_records` without the reading: it uses the record's
+    ``spec``, ``estimates``, ``likelihoods``, ``forecasts``, ``holdout``, ``reference``
+    standard errors, ``tolerances``, ``options``, ``provenance`` and ``verdict``.
+    """
     if tolerances is None:
         tolerances = Tolerances.from_dict({k: v["value"] for k, v in b["tolerances"].items()})
     tol = tolerances
+    transforms = (a["spec"].get("transform"), b["spec"].get("transform"))
+    if transforms[0] != transforms[1]:
+        raise RecordError(
+            f"The records fit different transforms ({transforms[0] or 'none'} and "
+            f"{transforms[1] or 'none'}): their log-likelihoods, coefficients and forecasts "
+            "are on different scales and do not compare. Audit both with the same transform."
+        )
+    fingerprint = lambda r: r["provenance"]["data"]["fingerprint_sha256"]  # noqa: E731
+    # Log-likelihoods of different samples are of different data: not comparable.
+    same_sample = fingerprint(a) == fingerprint(b)
+    offset = _step_offset(a, b)
+    notes: list[str] = []
+    if not same_sample:
+        notes.append(
+            "log-likelihoods and AICc not compared: the records are of different samples "
+            f"(n {a['provenance']['data'].get('n', '?')} -> "
+            f"{b['provenance']['data'].get('n', '?')}, data "
+            "fingerprints differ), and log-likelihoods of different data do not compare"
+        )
+    if offset is None:
+        notes.append(
+            "forecasts not compared: the series end at periods that cannot be matched "
+            f"({a['provenance']['data'].get('last')} and {b['provenance']['data'].get('last')})"
+        )
+    elif offset:
+        notes.append(
+            f"forecasts compared by target period: the new series ends {offset} period(s) "
+            "after the old one"
+        )
     se = b.get("reference", {}).get("standard_errors", {}) or {}
     rows: list[dict | None] = []
     keys = [k for k in b["estimates"] if k in a["estimates"]]
@@ -200,17 +364,27 @@ def compare_records(
             rows.append(_row(key, name, pa.get(name), pb.get(name), allowed))
         la = a["likelihoods"].get(key, {})
         lb = b["likelihoods"].get(key, {})
-        for name in ("loglike_native", "loglike_reference", "aicc"):
+        for name in ("loglike_native", "loglike_reference", "aicc") if same_sample else ():
             # AICc is -2 log-likelihood plus a constant: twice the log-likelihood tolerance.
             allowed = 2 * tol.loglike_atol if name == "aicc" else tol.loglike_atol
             rows.append(_row(key, name, la.get(name), lb.get(name), allowed))
         fa_ = a.get("forecasts", {}).get("transformed_scale", {}).get(key)
         fb_ = b.get("forecasts", {}).get("transformed_scale", {}).get(key)
-        if fa_ and fb_ and fa_.get("mean") and fb_.get("mean"):
-            for step, (x, y, s) in enumerate(
-                zip(fa_["mean"], fb_["mean"], fb_["se"], strict=False), start=1
-            ):
-                rows.append(_row(key, f"forecast_step{step}", x, y, tol.forecast_se_fraction * s))
+        if fa_ and fb_ and fa_.get("mean") and fb_.get("mean") and offset is not None:
+            # Step h of the new record forecasts the same period as step h + offset of the
+            # old one: forecasts are compared by the period they are for.
+            for step, (y, s) in enumerate(zip(fb_["mean"], fb_["se"], strict=False), start=1):
+                old_step = step + offset
+                if not 1 <= old_step <= len(fa_["mean"]):
+                    continue
+                # A standard error the estimator did not give (null) allows no change.
+                allowed = tol.forecast_se_fraction * s if s is not None else 0.0
+                name = (
+                    f"forecast_step{step}"
+                    if offset == 0
+                    else f"forecast_{_target(b, step)} (old step {old_step}, new step {step})"
+                )
+                rows.append(_row(key, name, fa_["mean"][old_step - 1], y, allowed))
         ha = ((a.get("holdout") or {}).get("accuracy") or {}).get(key, {})
         hb = ((b.get("holdout") or {}).get("accuracy") or {}).get(key, {})
         for name in sorted(set(ha) & set(hb)):
@@ -219,17 +393,16 @@ def compare_records(
             rows.append(_row(key, f"holdout_{name}", ha[name], hb[name], allowed))
     table = pd.DataFrame([r for r in rows if r is not None], columns=_COLUMNS)
     same_spec = a["spec"]["text"] == b["spec"]["text"]
-    fingerprint = lambda r: r["provenance"]["data"]["fingerprint_sha256"]  # noqa: E731
     if not same_spec and fingerprint(a) != fingerprint(b):
         raise RecordError(
             f"The records audit different specifications ({a['spec']['text']} and "
             f"{b['spec']['text']}) on different data; there is nothing to compare."
         )
-    return RecordDrift(
+    return RecordChanges(
         table=table,
         same_data=fingerprint(a) == fingerprint(b),
         same_spec=same_spec,
-        changes=_setting_changes(a, b),
+        changes=notes + _setting_changes(a, b),
         old_verdict=a["verdict"],
         new_verdict=b["verdict"],
     )

@@ -69,7 +69,7 @@ def provenance(report: AuditResult) -> dict[str, Any]:
     """Versions, platform and data fingerprint: what a reviewer needs to reproduce a record."""
     from forecastaudit._version import __version__
 
-    return {
+    out = {
         "forecastaudit": __version__,
         "python": sys.version.split()[0],
         "implementation": platform.python_implementation(),
@@ -77,7 +77,13 @@ def provenance(report: AuditResult) -> dict[str, Any]:
         "machine": platform.machine(),
         "packages": _packages(),
         "estimators": {
-            key: {"package": e.package, "version": e.version, "engine": e.engine}
+            key: {
+                "package": e.package,
+                "version": e.version,
+                "engine": e.engine,
+                "origin": e.origin,
+                **({"environment": e.provenance} if e.origin == "environment" else {}),
+            }
             for key, e in report.estimates.items()
         },
         "blas": _blas(),
@@ -91,6 +97,10 @@ def provenance(report: AuditResult) -> dict[str, Any]:
             "period": report.series.period,
         },
     }
+    invocation = getattr(report, "invocation", None)
+    if invocation:
+        out["invocation"] = _clean(dict(invocation))
+    return out
 
 
 def build_record(
@@ -152,6 +162,9 @@ def build_record(
             "findings": [f.to_dict() for f in report.findings],
         }
     )
+    signoff = getattr(report, "signoff", None)
+    if signoff is not None:
+        record["signoff"] = _clean(dict(signoff))
     if not timings:
         record = _without(record, "seconds")
     record["content_sha256"] = content_digest(record)
@@ -235,32 +248,119 @@ def dumps(record: dict[str, Any]) -> str:
     return json.dumps(_clean(record), sort_keys=True, indent=2, allow_nan=False) + "\n"
 
 
-def load_record(path: str | os.PathLike[str]) -> dict[str, Any]:
-    """Read a record written by forecastaudit, checking its kind and schema version.
+#: Deepest nesting of arrays and objects a record may have (a real record stays below 12).
+MAX_DEPTH = 64
 
-    Only JSON is parsed; nothing in the file is executed.
+#: Largest record file read, in bytes (a large audit with profiles is a few MB).
+MAX_BYTES = 256 * 1024 * 1024
+
+
+def _refuse_constant(token: str) -> None:
+    raise RecordError(
+        f"The file holds the non-standard JSON value {token}; audit records hold only "
+        "standard JSON (a missing number is null). Use the record as forecastaudit wrote it."
+    )
+
+
+def _no_duplicates(pairs: list[tuple[str, Any]]) -> dict[str, Any]:
+    out: dict[str, Any] = {}
+    for key, value in pairs:
+        if key in out:
+            raise RecordError(
+                f"The key {key[:80]!r} appears twice in one object; a reader could take "
+                "either value. Use the record as forecastaudit wrote it."
+            )
+        out[key] = value
+    return out
+
+
+def _depth(text: str) -> int:
+    depth = deepest = 0
+    in_string = escaped = False
+    for char in text:
+        if in_string:
+            if escaped:
+                escaped = False
+            elif char == "\\":
+                escaped = True
+            elif char == '"':
+                in_string = False
+        elif char == '"':
+            in_string = True
+        elif char in "[{":
+            depth += 1
+            deepest = max(deepest, depth)
+            if deepest > MAX_DEPTH:
+                return deepest
+        elif char in "]}":
+            depth -= 1
+    return deepest
+
+
+def parse_strict_json(data: bytes, where: str) -> Any:
+    """Parse untrusted JSON bytes strictly, raising only :class:`RecordError`.
+
+    Refused: content that is not UTF-8 text (binary files), NaN and Infinity literals,
+    duplicate keys in one object, and nesting deeper than :data:`MAX_DEPTH`.
+    """
+    if b"\x00" in data:
+        raise RecordError(f"{where} is a binary file, not an audit record (JSON text).")
+    try:
+        text = data.decode("utf-8")
+    except UnicodeDecodeError:
+        raise RecordError(
+            f"{where} is not UTF-8 text (a binary file?); it is not an audit record."
+        ) from None
+    if _depth(text) > MAX_DEPTH:
+        raise RecordError(
+            f"{where} nests arrays or objects more than {MAX_DEPTH} deep; no audit record "
+            "does. It is not a record forecastaudit wrote."
+        )
+    try:
+        return json.loads(text, object_pairs_hook=_no_duplicates, parse_constant=_refuse_constant)
+    except RecordError as exc:
+        raise RecordError(f"{where}: {exc}") from None
+    except (json.JSONDecodeError, RecursionError) as exc:
+        raise RecordError(
+            f"{where} is not valid JSON ({exc}); it is not an audit record."
+        ) from None
+
+
+def check_seal(record: Any, where: str) -> None:
+    """Raise :class:`RecordError` when ``content_sha256`` does not match the content."""
+    if record.get("content_sha256") != content_digest(record):
+        raise RecordError(
+            f"{where} was modified after it was written: its content no longer matches its "
+            "content_sha256 seal. Use the original record, or re-run the audit."
+        )
+
+
+def check_record(
+    record: Any,
+    where: str = "The record",
+    *,
+    trusted_keys: Any = None,
+    require_signature: bool | None = None,
+) -> dict[str, Any]:
+    """Check a record already in memory as :func:`load_record` checks a file.
 
     Raises
     ------
     RecordError
-        When the file is not JSON, not a forecastaudit record, or of a schema version this
-        release does not read.
+        When ``record`` is not a dict, not a forecastaudit record, of another schema
+        version, does not follow the schema, fails its seal, or (when signatures are
+        required) lacks a valid signature by a trusted key.
     """
-    try:
-        text = Path(path).read_text(encoding="utf-8")
-    except OSError as exc:
-        raise RecordError(f"Cannot read record {path}: {exc}") from exc
-    try:
-        record = json.loads(text)
-    except json.JSONDecodeError as exc:
-        raise RecordError(f"{path} is not valid JSON ({exc}); it is not an audit record.") from exc
     if not isinstance(record, dict) or record.get("record") != RECORD_KIND:
-        raise RecordError(f"{path} is not a forecastaudit record (no 'record' marker).")
+        raise RecordError(
+            f"{where} is not a forecastaudit record (no 'record' marker). Give a record "
+            "written by forecastaudit, read with load_record."
+        )
     version = str(record.get("schema_version", ""))
     if version != SCHEMA_VERSION:
         newer = _is_newer(version)
         raise RecordError(
-            f"{path} has schema version {version or 'none'}"
+            f"{where} has schema version {version or 'none'}"
             + (" (newer than this release)" if newer else "")
             + f"; this forecastaudit reads version {SCHEMA_VERSION}. "
             + (
@@ -272,13 +372,65 @@ def load_record(path: str | os.PathLike[str]) -> dict[str, Any]:
     try:
         validate_record(record)
     except RecordError as exc:
-        raise RecordError(f"{path}: {exc}") from None
-    if record.get("content_sha256") != content_digest(record):
-        raise RecordError(
-            f"{path} was modified after it was written: its content no longer matches its "
-            "content_sha256 seal. Use the original record, or re-run the audit."
-        )
+        raise RecordError(f"{where}: {exc}") from None
+    check_seal(record, where)
+    if require_signature is None:
+        require_signature = trusted_keys is not None
+    if require_signature:
+        if trusted_keys is None:
+            raise RecordError(
+                "Signatures are required but no trusted keys were given: pass "
+                "trusted_keys=[...] (the reviewers' public key files)."
+            )
+        from forecastaudit.record.signing import verify_signatures
+
+        verify_signatures(record, trusted_keys, where=where)
     return record
+
+
+def load_record(
+    path: str | os.PathLike[str],
+    *,
+    trusted_keys: Any = None,
+    require_signature: bool | None = None,
+) -> dict[str, Any]:
+    """Read a record written by forecastaudit, checking its kind, schema, seal and signatures.
+
+    Only JSON is parsed, strictly (see :func:`parse_strict_json`); nothing in the file is
+    executed.
+
+    Parameters
+    ----------
+    path : path-like
+    trusted_keys : public key or sequence of them, optional
+        Reviewers' Ed25519 public keys (PEM file paths, PEM bytes or key objects). When
+        given, the record must carry a valid signature by at least one of them.
+    require_signature : bool, optional
+        Default: True when ``trusted_keys`` is given. True without ``trusted_keys`` is an
+        error.
+
+    Raises
+    ------
+    RecordError
+        When the file is not standard JSON, not a forecastaudit record, of a schema version
+        this release does not read, changed after it was written, or (when signatures are
+        required) not signed by a trusted key.
+    """
+    where = str(path)
+    try:
+        size = Path(path).stat().st_size
+        if size > MAX_BYTES:
+            raise RecordError(
+                f"{where} is {size} bytes, more than any audit record ({MAX_BYTES}); it is "
+                "not a record forecastaudit wrote."
+            )
+        data = Path(path).read_bytes()
+    except OSError as exc:
+        raise RecordError(f"Cannot read record {path}: {exc}") from exc
+    record = parse_strict_json(data, where)
+    return check_record(
+        record, where, trusted_keys=trusted_keys, require_signature=require_signature
+    )
 
 
 def _is_newer(version: str) -> bool:

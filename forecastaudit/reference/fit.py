@@ -31,7 +31,11 @@ from forecastaudit.spec import ModelSpec
 
 # ====================================================================== starting values
 def conditional_least_squares(
-    y_transformed: Sequence[float] | np.ndarray, spec: ModelSpec, *, maxiter: int = 500
+    y_transformed: Sequence[float] | np.ndarray,
+    spec: ModelSpec,
+    *,
+    maxiter: int = 500,
+    regressors: np.ndarray | None = None,
 ) -> dict[str, float]:
     """Conditional-least-squares estimate, used as the reference fit's own start.
 
@@ -43,8 +47,10 @@ def conditional_least_squares(
     7.1 (the conditional sum-of-squares function; section recalled from memory).
 
     The search runs in the unconstrained partial-autocorrelation coordinates of
-    :func:`to_unconstrained`, from all coefficients zero and ``mu`` at the mean of w, so the
-    result is stationary and invertible.
+    :func:`to_unconstrained`, from all coefficients zero and ``mu`` (and the regression
+    coefficients) at their ordinary least-squares values on the differenced data, so the
+    result is stationary and invertible. With regressors the residuals are those of
+    ``w - mu - (Delta X) beta``.
 
     Returns
     -------
@@ -53,17 +59,20 @@ def conditional_least_squares(
         number of residuals in it).
     """
     w = difference(np.asarray(y_transformed, dtype=float).ravel(), spec)
-    mean_w = float(np.mean(w)) if w.size else 0.0
-    scale = _mu_scale(w)
+    dx = _differenced_regressors(spec, regressors, w.size)
+    block = _regression_block(spec, w, dx)
     layout = layout_of(spec)
     names = layout.coefficient_names
     n_ar = layout.ar_degree
 
     def residuals(x: np.ndarray) -> np.ndarray:
-        params = _params_from_search(spec, x, mean_w, scale)
+        params = _params_from_search(spec, x, block)
         ar, ma = layout.expanded_coefficients(params)
-        mu = params.get("mu", 0.0)
-        e = lfilter(np.concatenate(([1.0], -ar)), np.concatenate(([1.0], ma)), w - mu)
+        e = lfilter(
+            np.concatenate(([1.0], -ar)),
+            np.concatenate(([1.0], ma)),
+            _centred(w, dx, spec, params),
+        )
         return e[n_ar:]
 
     def objective(x: np.ndarray) -> float:
@@ -77,7 +86,7 @@ def conditional_least_squares(
             objective, x0, method="L-BFGS-B", jac="3-point", options={"maxiter": maxiter}
         )
         x0 = found.x
-    params = _params_from_search(spec, x0, mean_w, scale)
+    params = _params_from_search(spec, x0, block)
     e = residuals(x0)
     params["sigma2"] = float(e @ e) / e.size if e.size else math.nan
     return params
@@ -89,22 +98,92 @@ def _mu_scale(w: np.ndarray) -> float:
     return scale if scale > 0.0 and math.isfinite(scale) else 1.0
 
 
+@dataclass(frozen=True)
+class _RegressionBlock:
+    """Search coordinates of ``mu`` and the regression coefficients: centre and scale.
+
+    The centre is the ordinary least-squares fit of the differenced series on a constant
+    (with a mean) and the differenced regressors; the scale is the standard deviation of w
+    for ``mu`` and that divided by the standard deviation of the differenced regressor for
+    its coefficient, so that one unit in the search moves every coordinate comparably.
+    """
+
+    names: tuple[str, ...]
+    centre: np.ndarray
+    scale: np.ndarray
+
+
+def _differenced_regressors(spec: ModelSpec, regressors: np.ndarray | None, n_w: int) -> np.ndarray:
+    """The regressors differenced with the series, shape ``(n_w, k)`` (k = 0 without)."""
+    k = len(spec.regressors)
+    if not k:
+        return np.zeros((n_w, 0))
+    if regressors is None:
+        raise ValueError(f"{spec} has regressors; pass their values (an (n, k) array).")
+    x = np.asarray(regressors, dtype=float)
+    if x.ndim != 2 or x.shape[1] != k:
+        raise ValueError(f"{spec} has {k} regressor(s); got an array of shape {x.shape}.")
+    dx = difference(x, spec)
+    if dx.shape[0] != n_w:
+        raise ValueError(
+            f"The regressors have {x.shape[0]} rows; the series has "
+            f"{n_w + spec.lost_to_differencing}."
+        )
+    return dx
+
+
+def _regression_block(spec: ModelSpec, w: np.ndarray, dx: np.ndarray) -> _RegressionBlock:
+    layout = layout_of(spec)
+    names = (*layout.mean_names, *layout.regressor_names)
+    columns = ([np.ones(w.size)] if spec.mean else []) + [dx[:, j] for j in range(dx.shape[1])]
+    if not columns:
+        return _RegressionBlock((), np.zeros(0), np.ones(0))
+    design = np.column_stack(columns)
+    centre = np.linalg.lstsq(design, w, rcond=None)[0] if w.size else np.zeros(len(names))
+    w_scale = _mu_scale(w)
+    scale = np.array([w_scale] * int(spec.mean) + [_ratio(w_scale, c) for c in dx.T])
+    return _RegressionBlock(names, np.asarray(centre, dtype=float), scale)
+
+
+def _ratio(w_scale: float, column: np.ndarray) -> float:
+    spread = float(np.std(column)) if column.size > 1 else 0.0
+    value = w_scale / spread if spread > 0.0 and math.isfinite(spread) else w_scale
+    return value if value > 0.0 and math.isfinite(value) else 1.0
+
+
+def _centred(
+    w: np.ndarray, dx: np.ndarray, spec: ModelSpec, params: Mapping[str, float]
+) -> np.ndarray:
+    """``w - mu - (Delta X) beta``: the differenced regression errors minus their mean."""
+    mu = float(params["mu"]) if spec.mean else 0.0
+    if dx.shape[1]:
+        beta = np.array([float(params[name]) for name in layout_of(spec).regressor_names])
+        return w - mu - dx @ beta
+    return w - mu
+
+
 def _params_from_search(
-    spec: ModelSpec, x: np.ndarray, mean_w: float, scale: float
+    spec: ModelSpec, x: np.ndarray, block: _RegressionBlock
 ) -> dict[str, float]:
-    """Canonical coefficients from search coordinates (mu centred on mean(w), scaled)."""
+    """Canonical coefficients from search coordinates (mu and beta centred and scaled)."""
     params = from_unconstrained(spec, x)
-    if spec.mean:
-        params["mu"] = mean_w + scale * float(x[-1])
+    k = len(block.names)
+    if k:
+        values = block.centre + block.scale * np.asarray(x[-k:], dtype=float)
+        params.update(zip(block.names, values.tolist(), strict=True))
     return params
 
 
 def _search_from_params(
-    spec: ModelSpec, params: Mapping[str, float], mean_w: float, scale: float
+    spec: ModelSpec, params: Mapping[str, float], block: _RegressionBlock
 ) -> np.ndarray:
     x = to_unconstrained(spec, params)
-    if spec.mean:
-        x[-1] = (float(params.get("mu", mean_w)) - mean_w) / scale
+    k = len(block.names)
+    if k:
+        values = np.array(
+            [float(params.get(n, c)) for n, c in zip(block.names, block.centre, strict=True)]
+        )
+        x[-k:] = (values - block.centre) / block.scale
     return x
 
 
@@ -229,15 +308,17 @@ def fit_reference(
     *,
     method: Method = "auto",
     maxiter: int = 1000,
+    regressors: np.ndarray | None = None,
 ) -> ReferenceFit:
     """Maximise the reference likelihood from every given start and from our own CLS start.
 
     The profiled log-likelihood (sigma2 concentrated out) is maximised over the coefficients
     in the unconstrained coordinates of :func:`to_unconstrained` (each factor through its
     partial autocorrelations, so every point searched is stationary and invertible; Jones
-    1980, Monahan 1984) with ``mu`` free, by L-BFGS-B with three-point finite-difference
-    gradients and tight tolerances. sigma2 is then its ML value ``S / n_w``. The best end
-    point over all starts is the reference optimum.
+    1980, Monahan 1984) with ``mu`` and the regression coefficients free (estimated jointly,
+    centred on their least-squares values on the differenced data), by L-BFGS-B with
+    three-point finite-difference gradients and tight tolerances. sigma2 is then its ML
+    value ``S / n_w``. The best end point over all starts is the reference optimum.
 
     Standard errors are the square roots of the diagonal of ``(-H)^{-1}``, with H the
     Hessian of the full log-likelihood with respect to the canonical parameters (sigma2
@@ -258,6 +339,9 @@ def fit_reference(
         Likelihood path, see :func:`gaussian_loglike`.
     maxiter : int
         Iteration limit per start.
+    regressors : numpy.ndarray, optional
+        Regressor values, shape ``(n, k)`` in ``spec.regressors`` order; required when the
+        spec has regressors (regression on the levels with ARIMA errors).
 
     Returns
     -------
@@ -270,15 +354,23 @@ def fit_reference(
     n = w.size
     layout = layout_of(spec)
     names = layout.coefficient_names
-    mean_w, scale = float(np.mean(w)), _mu_scale(w)
+    dx = _differenced_regressors(spec, regressors, n)
+    block = _regression_block(spec, w, dx)
 
     def profiled_at(params: Mapping[str, float]) -> ReferenceLikelihood:
         ar, ma = layout.expanded_coefficients(params)
-        mu = float(params["mu"]) if spec.mean else 0.0
-        return gaussian_loglike(w, ar, ma, mu, 1.0, method=method, check_stationarity=False)
+        return gaussian_loglike(
+            _centred(w, dx, spec, params),
+            ar,
+            ma,
+            0.0,
+            1.0,
+            method=method,
+            check_stationarity=False,
+        )
 
     def objective(x: np.ndarray) -> float:
-        value = profiled_at(_params_from_search(spec, x, mean_w, scale)).profiled_loglike
+        value = profiled_at(_params_from_search(spec, x, block)).profiled_loglike
         return -value / n if math.isfinite(value) else 1e6
 
     candidates: list[tuple[str, Mapping[str, float] | None]] = [
@@ -291,7 +383,7 @@ def fit_reference(
     best_index = -1
     for index, (label, given) in enumerate(candidates):
         if given is None and index == len(candidates) - 1:
-            given = conditional_least_squares(y_transformed, spec)
+            given = conditional_least_squares(y_transformed, spec, regressors=regressors)
         if given is None:
             given = {}
         start = {k: float(v) for k, v in given.items() if _is_number(v)}
@@ -301,10 +393,10 @@ def fit_reference(
                 StartResult(label, start, {}, False, math.nan, {}, False, f"skipped: {problem}")
             )
             continue
-        if spec.mean:
-            start.setdefault("mu", mean_w)
+        for name, centre in zip(block.names, block.centre, strict=True):
+            start.setdefault(name, float(centre))
         used, moved = pull_inside(spec, start)
-        x0 = _search_from_params(spec, used, mean_w, scale)
+        x0 = _search_from_params(spec, used, block)
         if names:
             found = optimize.minimize(
                 objective,
@@ -318,7 +410,7 @@ def fit_reference(
         else:
             x, value = x0, objective(x0)
             converged, message, iterations = True, "no coefficients to estimate", 0
-        end = _params_from_search(spec, x, mean_w, scale)
+        end = _params_from_search(spec, x, block)
         scored = profiled_at(end)
         end["sigma2"] = scored.sigma2_hat
         results.append(
@@ -341,8 +433,8 @@ def fit_reference(
     best = results[best_index]
     params = dict(best.params)
     ordered = {name: params[name] for name in layout.parameter_names}
-    full = evaluate(y_transformed, spec, ordered, method=method)
-    errors, covariance, note = _standard_errors(w, spec, ordered, method)
+    full = evaluate(y_transformed, spec, ordered, method=method, regressors=regressors)
+    errors, covariance, note = _standard_errors(w, dx, spec, ordered, method)
     return ReferenceFit(
         params=ordered,
         loglike=full.loglike,
@@ -368,7 +460,9 @@ def _is_number(value: Any) -> bool:
 
 
 def _start_problem(names: Sequence[str], start: Mapping[str, float], spec: ModelSpec) -> str:
-    missing = [name for name in names if name not in start and name != "mu"]
+    # mu and the regression coefficients start at their least-squares values when missing.
+    free = {"mu", *layout_of(spec).regressor_names}
+    missing = [name for name in names if name not in start and name not in free]
     if missing:
         return f"no value for {missing}"
     bad = [name for name in names if name in start and not math.isfinite(start[name])]
@@ -379,14 +473,19 @@ def _start_problem(names: Sequence[str], start: Mapping[str, float], spec: Model
 
 # ====================================================================== standard errors
 def _standard_errors(
-    w: np.ndarray, spec: ModelSpec, params: Mapping[str, float], method: Method
+    w: np.ndarray, dx: np.ndarray, spec: ModelSpec, params: Mapping[str, float], method: Method
 ) -> tuple[dict[str, float], np.ndarray, str]:
     """Observed-information standard errors by a central-difference Hessian."""
     layout = layout_of(spec)
     names = layout.parameter_names
     theta = layout.to_vector(params, include_sigma2=True)
+    block = _regression_block(spec, w, dx)
+    scales = dict(zip(block.names, block.scale.tolist(), strict=True))
     steps = np.array(
-        [_step_scale(name, value, w) for name, value in zip(names, theta, strict=True)]
+        [
+            _step_scale(name, value, w, scales.get(name))
+            for name, value in zip(names, theta, strict=True)
+        ]
     )
 
     def loglike(values: np.ndarray) -> float:
@@ -394,9 +493,14 @@ def _standard_errors(
         if not layout.is_stationary(point):
             return -math.inf
         ar, ma = layout.expanded_coefficients(point)
-        mu = point["mu"] if spec.mean else 0.0
         return gaussian_loglike(
-            w, ar, ma, mu, point["sigma2"], method=method, check_stationarity=False
+            _centred(w, dx, spec, point),
+            ar,
+            ma,
+            0.0,
+            point["sigma2"],
+            method=method,
+            check_stationarity=False,
         ).loglike
 
     nan = dict.fromkeys(names, math.nan)
@@ -453,12 +557,17 @@ def _near_boundary(spec: ModelSpec, params: Mapping[str, float], margin: float =
     return ", ".join(found)
 
 
-def _step_scale(name: str, value: float, w: np.ndarray) -> float:
-    """Difference step: 1e-4 of the parameter's natural scale (common practice, no source)."""
+def _step_scale(name: str, value: float, w: np.ndarray, scale: float | None = None) -> float:
+    """Difference step: 1e-4 of the parameter's natural scale (common practice, no source).
+
+    For ``mu`` and a regression coefficient the natural scale is its naive standard error,
+    ``scale / sqrt(n_w)`` with ``scale`` the search scale of :class:`_RegressionBlock`.
+    """
     if name == "sigma2":
         return 1e-4 * abs(value)
-    if name == "mu":
-        return 1e-4 * max(abs(value), _mu_scale(w) / math.sqrt(max(w.size, 1)))
+    if name == "mu" or scale is not None:
+        spread = _mu_scale(w) if scale is None else scale
+        return 1e-4 * max(abs(value), spread / math.sqrt(max(w.size, 1)))
     return 1e-4 * max(abs(value), 0.1)
 
 

@@ -89,7 +89,8 @@ def to_unconstrained(spec: ModelSpec, params: Mapping[str, float]) -> np.ndarray
     Each factor (regular AR, seasonal AR, regular MA, seasonal MA) maps separately to its
     partial autocorrelations (:func:`ar_to_pacf`; an MA factor ``1 + b_1 B + ...`` is
     invertible exactly when the AR-form coefficients ``-b`` are stationary) and then to
-    reals (:func:`pacf_to_unconstrained`). ``mu`` passes through unchanged.
+    reals (:func:`pacf_to_unconstrained`). ``mu`` and the regression coefficients
+    ``x_<column>`` pass through unchanged.
 
     Returns
     -------
@@ -104,6 +105,7 @@ def to_unconstrained(spec: ModelSpec, params: Mapping[str, float]) -> np.ndarray
             coefs = factor.ar_form(factor.values(params))
             out.extend(pacf_to_unconstrained(ar_to_pacf(coefs)).tolist())
     out.extend(float(params.get(name, 0.0)) for name in layout.mean_names)
+    out.extend(float(params.get(name, 0.0)) for name in layout.regressor_names)
     return np.array(out, dtype=float)
 
 
@@ -118,7 +120,7 @@ def from_unconstrained(spec: ModelSpec, x: Sequence[float] | np.ndarray) -> dict
             block = values[position : position + factor.order]
             parts.append(factor.ar_form(pacf_to_ar(unconstrained_to_pacf(block))))
             position += factor.order
-    parts.append(values[position : position + len(layout.mean_names)])
+    parts.append(values[position : position + len(layout.mean_names) + len(layout.regressor_names)])
     return layout.from_vector(np.concatenate(parts))
 
 

@@ -12,7 +12,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from forecastaudit.conventions import difference
+from forecastaudit.conventions import difference, regression_effect
 from forecastaudit.layout import layout_of
 from forecastaudit.reference.likelihood import arma_autocovariances
 from forecastaudit.spec import ModelSpec
@@ -70,6 +70,9 @@ def best_linear_forecast(
     params: Mapping[str, float],
     steps: int,
     levels: Sequence[float] = (80.0, 95.0),
+    *,
+    regressors: np.ndarray | None = None,
+    future_regressors: np.ndarray | None = None,
 ) -> ReferenceForecast:
     """Minimum mean-squared-error forecasts of the reference model at given parameters.
 
@@ -87,11 +90,26 @@ def best_linear_forecast(
     At most :data:`FORECAST_CONDITION_MAX` latest differenced observations are conditioned
     on; for longer series the effect of earlier ones decays geometrically for a stationary
     and invertible model, and ``conditioned_on`` says how many were used.
+
+    With regressors (regression on the levels with ARIMA errors) the predictor above is that
+    of the errors ``u = y - X beta``, and the forecast of y adds the future regressors'
+    effect: ``E(y_f | y_o) = X_f beta + E(u_f | u_o)``, with the same variance, since
+    ``X beta`` is known. ``regressors`` (shape ``(n, k)``) and ``future_regressors`` (shape
+    ``(steps, k)``; further rows are ignored) are then both required.
     """
     from scipy.linalg import cho_factor, cho_solve, solve_triangular, toeplitz
     from scipy.stats import norm
 
-    y = np.asarray(y_transformed, dtype=float).ravel()
+    y_given = np.asarray(y_transformed, dtype=float).ravel()
+    effect = regression_effect(spec, params, regressors, rows=y_given.size)
+    future = None if future_regressors is None else np.asarray(future_regressors)[: int(steps)]
+    future_effect = regression_effect(spec, params, future, rows=int(steps))
+    if future_effect.size != int(steps):
+        raise ValueError(
+            f"Forecasting {int(steps)} steps needs {int(steps)} rows of future regressor "
+            f"values; got {future_effect.size}."
+        )
+    y = y_given - effect
     w = difference(y, spec)
     cond = w[-FORECAST_CONDITION_MAX:]
     n, h = cond.size, int(steps)
@@ -120,7 +138,7 @@ def best_linear_forecast(
     a = toeplitz(psi, np.zeros(h))
     variance = np.diag(a @ w_var @ a.T).copy()
     se = np.sqrt(np.maximum(variance, 0.0))
-    mean = path[y.size :]
+    mean = path[y.size :] + future_effect
     lower, upper = {}, {}
     for level in levels:
         zq = float(norm.ppf(0.5 + float(level) / 200.0))

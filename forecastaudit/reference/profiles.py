@@ -11,7 +11,7 @@ import pandas as pd
 
 from forecastaudit.conventions import difference
 from forecastaudit.layout import layout_of
-from forecastaudit.reference.fit import _mu_scale
+from forecastaudit.reference.fit import _differenced_regressors, _mu_scale, _regression_block
 from forecastaudit.reference.likelihood import evaluate
 from forecastaudit.spec import ModelSpec
 
@@ -25,6 +25,7 @@ def profile_line(
     n_points: int = 41,
     *,
     t_range: tuple[float, float] = (-0.25, 1.25),
+    regressors: np.ndarray | None = None,
 ) -> pd.DataFrame:
     """The reference likelihood along the straight line from one estimate to another.
 
@@ -43,6 +44,9 @@ def profile_line(
         Number of positions.
     t_range : (float, float)
         First and last position.
+    regressors : numpy.ndarray, optional
+        Regressor values, shape ``(n, k)``, when the spec has regressors (their
+        coefficients move along the line like every other parameter).
 
     Returns
     -------
@@ -60,7 +64,7 @@ def profile_line(
     rows = []
     for position in t:
         point = layout.from_vector((1.0 - position) * a + position * b, include_sigma2=True)
-        value = evaluate(y_transformed, spec, point)
+        value = evaluate(y_transformed, spec, point, regressors=regressors)
         rows.append(
             {
                 "t": float(position),
@@ -79,6 +83,8 @@ def profile_grid(
     names: tuple[str, str],
     ranges: tuple[tuple[float, float], tuple[float, float]] | None = None,
     n: int = 31,
+    *,
+    regressors: np.ndarray | None = None,
 ) -> dict[str, Any]:
     """The reference likelihood on a grid of two parameters, the others held fixed.
 
@@ -94,9 +100,12 @@ def profile_grid(
     ranges : ((float, float), (float, float)), optional
         Lower and upper ends of each axis. By default (common practice, no source): +-0.2
         around an AR/MA coefficient, +-4 naive standard errors ``std(w)/sqrt(n_w)`` around
-        ``mu``, and 0.7 to 1.4 times ``sigma2``.
+        ``mu`` (``std(w)/(std(Delta x) sqrt(n_w))`` around a regression coefficient), and 0.7
+        to 1.4 times ``sigma2``.
     n : int
         Points per axis.
+    regressors : numpy.ndarray, optional
+        Regressor values, shape ``(n, k)``, when the spec has regressors.
 
     Returns
     -------
@@ -111,9 +120,11 @@ def profile_grid(
             raise ValueError(f"{name!r} is not a parameter of {spec}; choose from {all_names}.")
     w = difference(np.asarray(y_transformed, dtype=float).ravel(), spec)
     if ranges is None:
+        block = _regression_block(spec, w, _differenced_regressors(spec, regressors, w.size))
+        scales = dict(zip(block.names, block.scale.tolist(), strict=True))
         ranges = (
-            _default_range(names[0], float(params[names[0]]), w),
-            _default_range(names[1], float(params[names[1]]), w),
+            _default_range(names[0], float(params[names[0]]), w, scales.get(names[0])),
+            _default_range(names[1], float(params[names[1]]), w, scales.get(names[1])),
         )
     x = np.linspace(ranges[0][0], ranges[0][1], int(n))
     y = np.linspace(ranges[1][0], ranges[1][1], int(n))
@@ -123,15 +134,17 @@ def profile_grid(
     for i, y_value in enumerate(y):
         for j, x_value in enumerate(x):
             point = {**base, names[0]: float(x_value), names[1]: float(y_value)}
-            value = evaluate(y_transformed, spec, point)
+            value = evaluate(y_transformed, spec, point, regressors=regressors)
             loglike[i, j], profiled[i, j] = value.loglike, value.profiled_loglike
     return {"names": tuple(names), "x": x, "y": y, "loglike": loglike, "profiled_loglike": profiled}
 
 
-def _default_range(name: str, value: float, w: np.ndarray) -> tuple[float, float]:
+def _default_range(
+    name: str, value: float, w: np.ndarray, scale: float | None = None
+) -> tuple[float, float]:
     if name == "sigma2":
         return 0.7 * value, 1.4 * value
-    if name == "mu":
-        half = 4.0 * _mu_scale(w) / math.sqrt(max(w.size, 1))
+    if name == "mu" or scale is not None:
+        half = 4.0 * (_mu_scale(w) if scale is None else scale) / math.sqrt(max(w.size, 1))
         return value - half, value + half
     return value - 0.2, value + 0.2

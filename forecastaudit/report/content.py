@@ -8,6 +8,7 @@ hold display text that is *not* escaped; each renderer escapes for its own forma
 from __future__ import annotations
 
 import math
+import shlex
 from collections.abc import Callable, Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
@@ -16,7 +17,7 @@ import numpy as np
 import pandas as pd
 
 from forecastaudit.diagnosis.findings import KINDS, Finding
-from forecastaudit.estimate import REFERENCE_KEY
+from forecastaudit.estimate import ORIGINS, REFERENCE_KEY
 from forecastaudit.jsonutil import is_finite_number as _finite
 
 if TYPE_CHECKING:
@@ -110,7 +111,7 @@ def format_number(value: Any, kind: str = "general") -> str:
     if number == 0.0:
         number = 0.0  # no "-0"
     if kind == "param":
-        return f"{number:.5g}"
+        return _significant(number, 5)
     if kind in ("loglike", "criterion"):
         return f"{number:.4f}"
     if kind == "seconds":
@@ -125,7 +126,30 @@ def format_number(value: Any, kind: str = "general") -> str:
         return f"{number:g}"
     if kind.startswith("fixed"):
         return f"{number:.{int(kind[len('fixed') :])}f}"
-    return f"{number:.6g}"
+    return _significant(number, 6)
+
+
+#: Beyond these magnitudes a number is written in scientific notation (nothing ordinary is).
+_PLAIN_RANGE = (1e-9, 1e12)
+
+
+def _significant(number: float, digits: int) -> str:
+    """``number`` to ``digits`` significant digits in plain decimal notation.
+
+    ``format(x, 'g')`` switches to scientific notation below 1e-4 (a drift of 0.0000167
+    would read 1.67e-05); a reviewer compares coefficients down a column by eye, so only
+    magnitudes outside :data:`_PLAIN_RANGE` keep the exponent.
+    """
+    size = abs(number)
+    if number == 0.0:
+        return "0"
+    if not _PLAIN_RANGE[0] <= size < _PLAIN_RANGE[1]:
+        return f"{number:.{digits}g}"
+    decimals = max(0, digits - 1 - math.floor(math.log10(size)))
+    text = f"{number:.{decimals}f}"
+    if "." in text:
+        text = text.rstrip("0").rstrip(".")
+    return text
 
 
 def column_kind(values: Iterable[Any], significant: int = 5) -> str:
@@ -221,6 +245,8 @@ def _num(value: Any, kind: str = "general", flag: str | None = None) -> Cell:
 def _text(value: Any, flag: str | None = None) -> Cell:
     if value is None or (isinstance(value, float) and not math.isfinite(value)):
         return Cell(MISSING)
+    if isinstance(value, bool | np.bool_):
+        return Cell("yes" if value else "no", flag=flag)
     return Cell(_plain_text(value), flag=flag)
 
 
@@ -301,7 +327,7 @@ def _production(report: AuditResult) -> tuple[str | None, str | None]:
 
 def summary(report: AuditResult) -> Summary:
     """The verdict block of a report."""
-    labels = report.series.labels()
+    labels = report.series.display_labels()
     counts = {s: len(report.findings_of(severity=s)) for s in ("fail", "warn", "info")}
     engine_values: Mapping[str, Any] = {}
     for f in report.findings:
@@ -367,11 +393,11 @@ class FindingGroup:
     items: tuple[FindingItem, ...] = field(default_factory=tuple)
 
 
-def _item(f: Finding) -> FindingItem:
+def _item(f: Finding, report: AuditResult | None = None) -> FindingItem:
     """One finding for the report; a finding shared by several wrappers of one engine is
-    shown once, naming all of them."""
+    shown once, naming all of them (an estimate made elsewhere with its origin)."""
     label = SEVERITY_LABELS[f.severity]
-    who = tuple(_plain_text(e) for e in f.estimators)
+    who = tuple(_column(report, e) if report is not None else _plain_text(e) for e in f.estimators)
     return FindingItem(
         severity=f.severity,
         word=label["word"],
@@ -416,7 +442,7 @@ def finding_groups(
                 heading=label["heading"],
                 word=label["word"],
                 symbol=label["symbol"],
-                items=tuple(_item(f) for f in kept),
+                items=tuple(_item(f, report) for f in kept),
             )
         )
     return groups
@@ -465,7 +491,7 @@ def parameter_table(report: AuditResult) -> Table:
         id="parameters",
         caption="Parameter estimates in the canonical convention",
         corner="parameter",
-        columns=(*(_plain_text(k) for k in keys), "reference SE", "tolerance"),
+        columns=(*(_column(report, k) for k in keys), "reference SE", "tolerance"),
         rows=tuple(rows),
         notes=notes,
     )
@@ -551,10 +577,25 @@ def likelihood_table(report: AuditResult) -> Table:
         id="likelihoods",
         caption="Log-likelihoods and information criteria, as reported and canonical",
         corner="quantity",
-        columns=tuple(_plain_text(k) for k in keys),
+        columns=tuple(_column(report, k) for k in keys),
         rows=tuple(rows),
         notes=notes,
     )
+
+
+def _column(report: AuditResult, key: str) -> str:
+    """A column heading: the key, with its origin when the estimate was not fitted here."""
+    estimate = report.estimates.get(key)
+    return _plain_text(estimate.column if estimate is not None else key)
+
+
+def _where(e: Any) -> str:
+    """Where an estimate made elsewhere came from: the import file or the environment."""
+    if e.origin == "imported" and e.provenance.get("source"):
+        return f": {e.provenance['source']}"
+    if e.origin == "environment" and e.provenance.get("environment"):
+        return f": {e.provenance['environment']}"
+    return ""
 
 
 def estimator_table(report: AuditResult) -> Table:
@@ -567,6 +608,7 @@ def estimator_table(report: AuditResult) -> Table:
                 _plain_text(key),
                 (
                     _text(e.status),
+                    _text(ORIGINS.get(e.origin, e.origin) + _where(e)),
                     _text(e.package),
                     _text(e.version or "not installed"),
                     _text(e.engine),
@@ -583,6 +625,7 @@ def estimator_table(report: AuditResult) -> Table:
         corner="estimator",
         columns=(
             "status",
+            "origin",
             "package",
             "version",
             "engine",
@@ -595,6 +638,8 @@ def estimator_table(report: AuditResult) -> Table:
         notes=(
             "Estimators that share an engine are wrappers of one implementation and count once "
             "as independent evidence. Every warning is kept in the audit record.",
+            "Imported estimates were made by other software and typed in or exported as import "
+            "records; their package and version are as the record states them.",
         ),
     )
 
@@ -795,9 +840,33 @@ def materiality_table(report: AuditResult) -> Table | None:
     )
 
 
+def signoff_table(report: AuditResult) -> Table | None:
+    """The reviewer's sign-off, one field per row, or None when there is none."""
+    block = getattr(report, "signoff", None)
+    if not block:
+        return None
+    facts = [
+        ("reviewer", block.get("reviewer")),
+        ("date", block.get("date")),
+        ("decision", block.get("decision")),
+        ("policy reference", block.get("policy_reference")),
+        ("comments", block.get("comments") or "none"),
+    ]
+    return Table(
+        id="signoff",
+        caption="Sign-off by the reviewer",
+        corner="field",
+        columns=("value",),
+        rows=tuple(Row(label, (_text(value),)) for label, value in facts),
+    )
+
+
 def provenance_table(report: AuditResult, provenance: Mapping[str, Any]) -> Table:
     """Versions, platform and the data fingerprint, one fact per row."""
-    data = provenance.get("data", {})
+    data = dict(provenance.get("data", {}))
+    shown = report.series.display_labels() if len(report.series) else []
+    if shown:  # periods (2009-01), as everywhere in the report, not midnight timestamps
+        data["first"], data["last"] = shown[0], shown[-1]
     facts = [
         ("audit finished (UTC)", report.created or MISSING),
         ("forecastaudit", provenance.get("forecastaudit")),
@@ -812,6 +881,13 @@ def provenance_table(report: AuditResult, provenance: Mapping[str, Any]) -> Tabl
         ("period", data.get("period") or "none"),
         ("data fingerprint (SHA-256)", data.get("fingerprint_sha256")),
     ]
+    invocation = provenance.get("invocation") or {}
+    if invocation.get("command_line"):
+        facts.append(("command line", shlex.join(invocation["command_line"])))
+    source = invocation.get("input_file") or {}
+    if source:
+        facts.append(("input file", f"{source.get('name')} ({source.get('bytes')} bytes)"))
+        facts.append(("input file SHA-256", source.get("sha256")))
     return Table(
         id="provenance",
         caption="Provenance: what is needed to reproduce this audit",
@@ -884,7 +960,7 @@ def forecast_table(report: AuditResult) -> Table | None:
     level = width_columns[0][len("interval_width_") :] if width_columns else ""
     steps = len(spread)
     try:
-        future = [str(x) for x in report.series.future_index(steps)]
+        future = report.series.display_labels(report.series.future_index(steps))
     except Exception:  # labels are a courtesy; a horizon number always works
         future = [str(h) for h in spread.index]
     frame = spread.copy()
@@ -972,29 +1048,121 @@ _ORDER_SEARCH_TABLES = (
 
 
 def order_search_tables(report: AuditResult) -> list[Table]:
-    """The order-search audit's tables; empty when it did not run."""
+    """The order-search audit's tables, ready to print; empty when it did not run.
+
+    A frame without a meaningful index (positions 0, 1, ...) is labelled by its first
+    column instead (the model, the search), the candidates table keeps only the candidates
+    within 2 AICc units of the best (Burnham & Anderson 2002; the full list stays in the
+    record), and a table too wide for a printed page is turned or split
+    (:func:`fit_for_print`), so no column is lost on paper.
+    """
     result = getattr(report, "order_search", None)
     if result is None:
         return []
-    tables = []
+    tables: list[Table] = []
     for name, caption in _ORDER_SEARCH_TABLES:
         frame = getattr(result, name, None)
         if frame is None or frame.empty:
             continue
-        tables.append(
-            frame_table(
-                frame,
-                id=f"order-search-{name.replace('_', '-')}",
-                caption=caption,
-                corner=str(frame.index.name or ""),
-                columns=[
-                    (str(c), str(c).replace("_", " "), _kind(frame[c]))
-                    for c in frame.columns
-                    if not any(isinstance(v, dict | list) for v in frame[c])  # kept in the record
-                ],
+        notes: list[str] = []
+        if name == "candidates":
+            frame, notes = _within_support_band(frame)
+        frame = _labelled_rows(frame)
+        table = frame_table(
+            frame,
+            id=f"order-search-{name.replace('_', '-')}",
+            caption=caption,
+            corner=str(frame.index.name or ""),
+            columns=[
+                (str(c), str(c).replace("_", " "), _kind(frame[c]))
+                for c in frame.columns
+                if not any(isinstance(v, dict | list) for v in frame[c])  # kept in the record
+            ],
+            notes=notes,
+        )
+        tables += fit_for_print(table)
+    return tables
+
+
+def _within_support_band(frame: pd.DataFrame) -> tuple[pd.DataFrame, list[str]]:
+    """Only the candidates within 2 AICc units of the best, and a note saying so."""
+    if "within_2" in frame.columns:
+        within = frame["within_2"].fillna(False).astype(bool)
+    elif "delta_aicc" in frame.columns:
+        within = frame["delta_aicc"] <= 2.0
+    else:
+        return frame, []
+    kept = frame[within.to_numpy()].drop(columns=["within_2"], errors="ignore")
+    if isinstance(frame.index, pd.RangeIndex):
+        kept = kept.reset_index(drop=True)
+    note = (
+        f"{len(kept)} of {len(frame)} candidates lie within 2 AICc units of the best (Burnham "
+        "& Anderson 2002, section 2.6); the record lists them all."
+    )
+    return kept, [note]
+
+
+def _labelled_rows(frame: pd.DataFrame) -> pd.DataFrame:
+    """The frame indexed by its first column when its index is only positions."""
+    positions = isinstance(frame.index, pd.RangeIndex) and frame.index.name is None
+    if not positions or frame.columns.empty:
+        return frame
+    first = frame.columns[0]
+    if any(isinstance(v, dict | list) for v in frame[first]):
+        return frame
+    return frame.set_index(first)
+
+
+#: Most data columns a table prints with on a portrait A4 page at the report's print size.
+PRINT_COLUMNS = 8
+#: Most rows of a wide table that is turned (rows become columns) rather than split.
+TURN_ROWS = 6
+
+
+def fit_for_print(table: Table, max_columns: int = PRINT_COLUMNS) -> list[Table]:
+    """A wide table as tables that fit a printed page, keeping every column.
+
+    A table with more than ``max_columns`` data columns and at most :data:`TURN_ROWS`
+    rows is turned: each column becomes a row, each row a column (what a search selected
+    reads down the page). A wider table with more rows is split into parts of at most
+    ``max_columns`` columns, each repeating the row headers. Narrow tables are returned
+    as they are.
+    """
+    if len(table.columns) <= max_columns:
+        return [table]
+    rows = [r for r in table.rows if not r.group]
+    if len(rows) <= TURN_ROWS:
+        turned = tuple(
+            Row(heading, tuple(r.cells[i] for r in rows)) for i, heading in enumerate(table.columns)
+        )
+        return [
+            Table(
+                id=table.id,
+                caption=table.caption,
+                corner=table.corner,
+                columns=tuple(r.header for r in rows),
+                rows=turned,
+                notes=table.notes,
+            )
+        ]
+    parts = range(0, len(table.columns), max_columns)
+    out = []
+    for number, start in enumerate(parts, 1):
+        stop = min(start + max_columns, len(table.columns))
+        out.append(
+            Table(
+                id=table.id if number == 1 else f"{table.id}-{number}",
+                caption=f"{table.caption} (columns {start + 1}-{stop} of {len(table.columns)})",
+                corner=table.corner,
+                columns=table.columns[start:stop],
+                rows=tuple(
+                    Row(r.header, r.cells[start:stop], r.group) if not r.group else r
+                    for r in table.rows
+                ),
+                notes=table.notes if number == len(parts) else (),
             )
         )
-    return tables
+    return out
 
 
 def _kind(values: pd.Series) -> str:

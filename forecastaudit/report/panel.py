@@ -185,7 +185,7 @@ def _worst_plot(result: PanelResult) -> Plot | None:
             ticks = list(range(0, len(labels), 12))
             ax.set_xticks(ticks, [labels[i] for i in ticks])
         ax.set_title(str(series_id), loc="left", fontsize=10)
-        ax.legend(fontsize=7, loc="upper left", ncol=3, frameon=False)
+        ax.legend(fontsize=7, loc="lower right", bbox_to_anchor=(1.0, 1.0), ncol=4, frameon=False)
         _style_axes(ax)
     return Plot(
         "panel-worst",

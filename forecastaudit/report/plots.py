@@ -28,7 +28,7 @@ import numpy as np
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
-from forecastaudit.estimate import REFERENCE_KEY
+from forecastaudit.estimate import ORIGINS, REFERENCE_KEY
 from forecastaudit.jsonutil import is_finite_number as _finite
 
 if TYPE_CHECKING:
@@ -203,10 +203,15 @@ class Entry:
         The estimator keys drawn as this entry, in the audit's order.
     engine : str or None
         Their engine.
+    origin : str
+        Where the estimate was made (``fitted``, ``imported``, ``environment``); an entry
+        not fitted here says so in its label.
     """
 
     keys: tuple[str, ...]
     engine: str | None = None
+    origin: str = "fitted"
+    title: str = ""
 
     @property
     def key(self) -> str:
@@ -215,16 +220,19 @@ class Entry:
 
     @property
     def label(self) -> str:
-        """Short label for ticks and legends: the key, or the engine and how many wrappers."""
+        """Short label for ticks and legends: the key (with its origin when it was not fitted
+        here), or the engine and how many wrappers."""
         if len(self.keys) == 1:
-            return self.keys[0]
+            if self.origin == "fitted":
+                return self.keys[0]
+            return self.title or f"{self.keys[0]} ({ORIGINS.get(self.origin, self.origin)})"
         return f"{self.engine} ({len(self.keys)} wrappers)"
 
     @property
     def full(self) -> str:
         """The label naming every wrapper, for alternative texts and captions."""
         if len(self.keys) == 1:
-            return self.keys[0]
+            return self.label
         return f"{self.label}: {', '.join(self.keys)}"
 
 
@@ -249,9 +257,13 @@ def estimator_entries(
     frame = report.parameters
     groups: list[list[str]] = []
     engines: list[str | None] = []
+    origins: dict[str, str] = {}
+    titles: dict[str, str] = {}
     for key in keys:
         estimate = report.estimates.get(key)
         engine = getattr(estimate, "engine", None) if estimate is not None else None
+        origins[key] = str(getattr(estimate, "origin", "fitted"))
+        titles[key] = str(getattr(estimate, "column", key))
         vector = frame[key].to_numpy(dtype=float) if key in frame.columns else None
         placed = False
         if key != REFERENCE_KEY and engine and vector is not None:
@@ -259,6 +271,7 @@ def estimator_entries(
                 first = group[0]
                 if (
                     group_engine == engine
+                    and origins[first] == origins[key]
                     and first != REFERENCE_KEY
                     and first in frame.columns
                     and _same_vector(frame[first].to_numpy(dtype=float), vector)
@@ -271,7 +284,7 @@ def estimator_entries(
             groups.append([key])
             engines.append(engine)
     return [
-        Entry(tuple(str(k) for k in group), engine)
+        Entry(tuple(str(k) for k in group), engine, origins[group[0]], titles[group[0]])
         for group, engine in zip(groups, engines, strict=True)
     ]
 
@@ -408,7 +421,7 @@ def series_plot(report: AuditResult) -> Plot:
     else:
         ax.set_title(_label(report.series.name), loc="left", fontsize=10, color=PALETTE["ink"])
     png = figure_to_png(figure)
-    labels = report.series.labels()
+    labels = report.series.display_labels()
     alt = (
         f"Line chart of the series {report.series.name} on its original scale: "
         f"{values.size} observations from {labels[0]} to {labels[-1]}, ranging from "

@@ -133,6 +133,10 @@ def _verdict(data: ReportData) -> content.Summary:
     return data.summary
 
 
+def _signoff(data: ReportData) -> list[content.Table] | None:
+    return _kept(content.signoff_table(data.report))
+
+
 def _findings(data: ReportData) -> list[content.FindingGroup] | None:
     return content.finding_groups(data.report) or None
 
@@ -200,6 +204,16 @@ def _caution(data: ReportData) -> str:
 
 SECTIONS: tuple[Section, ...] = (
     Section("verdict", "Verdict", "verdict", _verdict),
+    Section(
+        "signoff",
+        "Sign-off",
+        "tables",
+        _signoff,
+        intro=(
+            "The reviewer's decision as written into the record. A signature on the record "
+            "covers this block; the report itself is not signed."
+        ),
+    ),
     Section(
         "findings",
         "Findings",

@@ -28,6 +28,10 @@ from forecastaudit.search.decomposition import (
 from forecastaudit.search.exhaustive import SUPPORT_BAND, exhaustive_reference_search
 from forecastaudit.series import prepare_series
 from forecastaudit.spec import ModelSpec
+from forecastaudit.validation import whole_number
+
+#: Largest bound of one kind of term in the exhaustive reference search.
+MAX_SEARCH_ORDER = 5
 
 # Rules of thumb (common practice, no source).
 LARGE_PQ = 4  # p + q at or above this is large
@@ -118,6 +122,12 @@ class OrderSearchAudit:
             "timings": _records(self.timings),
             "findings": [f.to_dict() for f in self.findings],
         }
+
+    def __repr__(self) -> str:
+        return (
+            f"<OrderSearchAudit {self.series_name!r} (n={self.n}, period {self.period}): "
+            f"{len(self.searches)} searches, {len(self.findings)} findings>"
+        )
 
     def __str__(self) -> str:
         lines = [
@@ -331,6 +341,14 @@ def audit_order_search(
     -------
     OrderSearchAudit
     """
+    for label, bound in (("max_p", max_p), ("max_q", max_q), ("max_P", max_P), ("max_Q", max_Q)):
+        whole_number(bound, label, minimum=0, example="2")
+        if bound > MAX_SEARCH_ORDER:
+            raise SpecError(
+                f"{label}={bound} asks the exhaustive search for more than "
+                f"{MAX_SEARCH_ORDER} terms of one kind; the candidates grow with the product "
+                f"of the bounds. Use {label} <= {MAX_SEARCH_ORDER}."
+            )
     series = prepare_series(y, period=period, name=name)
     m = series.period if series.period and series.period > 1 else 1
     base_spec = ModelSpec(period=m if m > 1 else None, transform=transform)
