@@ -10,9 +10,16 @@ from __future__ import annotations
 
 from typing import NamedTuple
 
+import cryptography.hazmat.primitives.asymmetric.ed25519
+import cryptography.hazmat.primitives.serialization  # noqa: F401
 import numpy as np
 import pandas as pd
 import pytest
+
+# pytester's in-process runs (tests/test_plugin*.py) restore ``sys.modules`` afterwards. A
+# library with compiled parts first imported inside such a run is then imported a second
+# time, and its classes no longer match those its compiled module holds: cryptography then
+# refuses its own ``NoEncryption()``. Importing it here, before any inner run, keeps one copy.
 
 
 class Simulated(NamedTuple):

@@ -365,17 +365,24 @@ def environment_adapter(
     The class is importable by its name from this module (worker processes of the audit
     rebuild it from the name), so it can be sent to them like any adapter class.
 
+    The environments folder is fixed when the class is made (``folder``, else
+    ``$FORECASTAUDIT_ENVIRONMENTS`` or the default at that moment), so worker processes
+    started before the variable was set still look in the same folder.
+
     Raises
     ------
     EstimatorError
         When ``library`` cannot be run in another environment.
     """
+    from forecastaudit.environments import environments_folder
+
+    folder = str(environments_folder(folder))
     if library not in SUPPORTED:
         raise EstimatorError(
             f"{library!r} cannot run in another environment yet; those that can: "
             f"{', '.join(SUPPORTED)}."
         )
-    qualname = _encode(library, environment, None if folder is None else str(folder))
+    qualname = _encode(library, environment, folder)
     if qualname in _CLASSES:
         return _CLASSES[qualname]  # type: ignore[return-value]
     from forecastaudit.adapters.registry import adapter_class
@@ -399,7 +406,7 @@ def environment_adapter(
             ),
             "environment_name": environment,
             "library": library,
-            "folder": None if folder is None else str(folder),
+            "folder": folder,
         },
     )
     _CLASSES[qualname] = cls
