@@ -594,8 +594,6 @@ class SearchOutcome:
         )
 
 
-
-
 def estimate_schema() -> dict[str, Any]:
     """The JSON Schema of one estimate's :meth:`Estimate.to_dict` form."""
     import json

@@ -41,8 +41,11 @@ MARKER = "faulty-marker"
 
 #: Supply lines of the small panel: three hospitals' lines and one planted line.
 SMALL_LINES = [
-    *(f"H00{h} {p}" for h in (1, 2, 3) for p in ("red-cells", "platelets", "plasma",
-                                                   "cryoprecipitate")),
+    *(
+        f"H00{h} {p}"
+        for h in (1, 2, 3)
+        for p in ("red-cells", "platelets", "plasma", "cryoprecipitate")
+    ),
     "H013 red-cells",
 ]
 SMALL_LINES.remove("H003 cryoprecipitate")
@@ -108,7 +111,7 @@ def test_full_panel_puts_the_planted_lines_first(full_panel: Any) -> None:
     assert (top["cause_estimator"] == PRODUCTION).all()
     assert top["production_material"].astype(bool).all()
     assert (top["rank"] == 0).all()
-    others = summary.iloc[len(planted):]
+    others = summary.iloc[len(planted) :]
     extra = others[others["verdict"] == "fail"]
     assert set(extra.index) <= ORDINARY_FAILING, extra
     assert (extra["cause"] == "stopped-short").all() and (
@@ -169,7 +172,9 @@ def test_full_panel_report_in_headless_chromium(full_panel: Any, tmp_path: Path)
     png = tmp_path / "panel.png"
     subprocess.run(
         [*base, f"--screenshot={png}", "--window-size=1280,1600", page],
-        capture_output=True, timeout=120, check=True,
+        capture_output=True,
+        timeout=120,
+        check=True,
     )
     assert png.is_file() and png.stat().st_size > 1000
     assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
@@ -280,7 +285,7 @@ def test_hanging_and_crashing_series_then_resume(tmp_path: Path) -> None:
         second = audit_panel(good, MODEL, estimators=[PRODUCTION, MARKER], workers=2,
                              time_limit=20, out=folder)  # fmt: skip
     assert second.resumed == len(rest) == 3
-    new = [json.loads(x) for x in _store_lines(folder)[1 + 5:]]
+    new = [json.loads(x) for x in _store_lines(folder)[1 + 5 :]]
     assert sorted(e["id"] for e in new) == sorted([hang, crash])
     assert all(e["status"] == "audited" for e in new)
     assert (second.summary["status"] == "audited").all()
