@@ -24,6 +24,25 @@ from forecastaudit.estimate import Estimate, Forecast, Sigma2Kind
 from forecastaudit.jsonutil import to_plain
 from forecastaudit.spec import ModelSpec
 
+_FOUND_VERSIONS: dict[str, str] = {}
+
+
+def installed_version(package: str) -> str | None:
+    """The installed version of ``package``, or None when it is not installed.
+
+    A version once found is kept for the life of the process (asking the package metadata
+    costs milliseconds, and every record asks for several); a package not found is asked
+    again next time, so one installed later is seen.
+    """
+    found = _FOUND_VERSIONS.get(package)
+    if found is None:
+        try:
+            found = importlib.metadata.version(package)
+        except importlib.metadata.PackageNotFoundError:
+            return None
+        _FOUND_VERSIONS[package] = found
+    return found
+
 
 @dataclass(frozen=True)
 class Capabilities:
@@ -288,10 +307,7 @@ class LibraryBound:
 
     def version(self) -> str | None:
         """Installed version of the package, or None when it is not installed."""
-        try:
-            return importlib.metadata.version(self.package)
-        except importlib.metadata.PackageNotFoundError:
-            return None
+        return installed_version(self.package)
 
     def availability(self) -> str | None:
         """None when the library imports; otherwise the reason it does not."""

@@ -9,7 +9,6 @@ so a reader never sees half a record.
 from __future__ import annotations
 
 import hashlib
-import importlib.metadata
 import json
 import os
 import platform
@@ -19,6 +18,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
+from forecastaudit.adapters.protocol import installed_version
 from forecastaudit.adapters.registry import adapter_packages
 from forecastaudit.errors import RecordError
 from forecastaudit.jsonutil import to_plain as _clean
@@ -39,20 +39,13 @@ RECORD_KIND = "forecastaudit-record"
 _CORE_PACKAGES = ("numpy", "scipy", "pandas")
 
 
-def _version(package: str) -> str | None:
-    try:
-        return importlib.metadata.version(package)
-    except importlib.metadata.PackageNotFoundError:
-        return None
-
-
 def _packages() -> dict[str, str | None]:
     """Installed versions of the core packages and of every registered adapter's library."""
     names = list(_CORE_PACKAGES)
     for package in adapter_packages():
         if package not in names and package != "forecastaudit":
             names.append(package)
-    return {name: _version(name) for name in names}
+    return {name: installed_version(name) for name in names}
 
 
 def _blas() -> str | None:
