@@ -107,7 +107,9 @@ def file_sha256(path: str | Path) -> dict[str, Any]:
                 digest.update(block)
                 size += len(block)
     except OSError as exc:
-        raise ForecastAuditError(f"Cannot read the data file {path}: {exc}.") from None
+        raise ForecastAuditError(
+            f"Cannot read the input file {path}: {exc}. Check the path and its permissions."
+        ) from None
     return {"name": Path(path).name, "sha256": digest.hexdigest(), "bytes": size}
 
 
@@ -115,6 +117,12 @@ def _invocation(args: argparse.Namespace, data: str | None) -> dict[str, Any]:
     out: dict[str, Any] = {"command_line": ["forecastaudit", *args.argv]}
     if data is not None:
         out["input_file"] = file_sha256(data)
+    # Every other file the audit read, so the record pins all the bytes that went into it.
+    others = [("future regressor values", getattr(args, "future", None))]
+    others += [("imported estimate", path) for path in getattr(args, "imports", None) or []]
+    found = [{"role": role, **file_sha256(path)} for role, path in others if path]
+    if found:
+        out["other_files"] = found
     return out
 
 

@@ -429,6 +429,17 @@ def test_cli_import_option(tmp_path: Path, cedar_record: dict[str, Any], capsys:
     record = json.loads((out / "forecastaudit-record.json").read_text())
     assert record["estimates"]["cedar"]["origin"] == "imported"
     assert record["estimates"]["cedar"]["provenance"]["source"] == str(path)
+    # The imported file's bytes are pinned in the record, beside the data file's.
+    import hashlib
+
+    (other,) = record["provenance"]["invocation"]["other_files"]
+    assert other == {
+        "role": "imported estimate",
+        "name": "cedar.json",
+        "sha256": hashlib.sha256(path.read_bytes()).hexdigest(),
+        "bytes": path.stat().st_size,
+    }
+    assert other["sha256"] in (out / "forecastaudit-report.md").read_text()
 
 
 def test_cli_import_error_is_a_usage_error(tmp_path: Path, capsys: Any) -> None:

@@ -888,6 +888,10 @@ def provenance_table(report: AuditResult, provenance: Mapping[str, Any]) -> Tabl
     if source:
         facts.append(("input file", f"{source.get('name')} ({source.get('bytes')} bytes)"))
         facts.append(("input file SHA-256", source.get("sha256")))
+    for other in invocation.get("other_files") or []:
+        role = other.get("role", "other file")
+        facts.append((role, f"{other.get('name')} ({other.get('bytes')} bytes)"))
+        facts.append((f"{role} SHA-256", other.get("sha256")))
     return Table(
         id="provenance",
         caption="Provenance: what is needed to reproduce this audit",
