@@ -69,7 +69,7 @@ from forecastaudit.run import Backend, make_backend
 from forecastaudit.series import (
     PreparedSeries,
     check_length,
-    period_from_frequency,
+    conventional_periods,
     prepare_future_regressors,
     prepare_regressors,
     prepare_series,
@@ -110,8 +110,9 @@ def resolve_series_and_spec(
     The period fitted is the one recorded. It comes from the model, the ``period`` argument
     or the series' index, in that order of precedence, and where two of them give a period
     they must agree: a ``period`` argument that contradicts the model is refused, and so is
-    a model whose period contradicts the index (a quarterly model on monthly data, a
-    period-12 model on daily data) unless ``period`` confirms it deliberately.
+    a model whose period is not a cycle of the index (a quarterly model on monthly data, a
+    period-12 model on daily data) unless ``period`` confirms it deliberately. Hourly data
+    may have period 24 or 168 and daily data 7 or 365 without confirmation.
     """
     parsed = _parse_spec(spec)
     _check_work(parsed)
@@ -126,17 +127,13 @@ def resolve_series_and_spec(
                 "them agree."
             )
     series = prepare_series(y, period=period if period is not None else parsed.period, name=name)
-    implied = period_from_frequency(series.frequency)
-    if (
-        period is None
-        and parsed.period is not None
-        and implied is not None
-        and implied != parsed.period
-    ):
+    usual = conventional_periods(series.frequency)
+    if period is None and parsed.period is not None and usual and parsed.period not in usual:
+        periods = " or ".join(map(str, usual))
         raise SpecError(
             f"The model {parsed} has period {parsed.period}, but the index of "
             f"'{plain(series.name)}' has frequency {series.frequency}, whose period is "
-            f"{implied}. Write the model with period {implied}, or pass "
+            f"{periods}. Write the model with period {usual[0]}, or pass "
             f"period={parsed.period} to fit period {parsed.period} on this index deliberately."
         )
     resolved = _resolve_spec(parsed, series.period)

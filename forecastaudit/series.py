@@ -25,6 +25,7 @@ from forecastaudit.validation import echo, limit_error, plain, whole_number
 __all__ = [
     "PreparedRegressors",
     "PreparedSeries",
+    "conventional_periods",
     "period_from_frequency",
     "prepare_future_regressors",
     "prepare_regressors",
@@ -44,6 +45,11 @@ _PERIOD_BY_CODE = {
     **dict.fromkeys(("h", "H"), 24),
     **dict.fromkeys(("Y", "YE", "YS", "A", "AS", "BY", "BYE", "BYS", "BA", "BAS"), 1),
 }
+# Further cycles a model may name on such an index without saying so twice: hourly data
+# have a weekly cycle as well as a daily one, daily data a yearly one as well as a weekly one.
+# Any other period on a dated index (a quarterly model on monthly data) must be confirmed
+# with period=.
+_OTHER_CYCLES = {24: (168,), 7: (365,)}
 _FREQ_RE = re.compile(r"^(?P<n>\d*)(?P<code>[A-Za-z]+)(?:-[A-Za-z]+)?$")
 
 
@@ -66,6 +72,19 @@ def period_from_frequency(freq: str | None) -> int | None:
     if not match or match["n"] not in ("", "1"):
         return None
     return _PERIOD_BY_CODE.get(match["code"])
+
+
+def conventional_periods(freq: str | None) -> tuple[int, ...]:
+    """The seasonal periods a model may have on an index of frequency ``freq`` unconfirmed.
+
+    The usual period (:func:`period_from_frequency`) first, then the other cycles of that
+    frequency: hourly 24 and 168 (a week of hours), daily 7 and 365. Empty when the
+    frequency has no conventional period.
+    """
+    usual = period_from_frequency(freq)
+    if usual is None:
+        return ()
+    return (usual, *_OTHER_CYCLES.get(usual, ()))
 
 
 @dataclass(frozen=True, eq=False)

@@ -82,6 +82,34 @@ def test_period_from_frequency_takes_an_offset():
     assert period_from_frequency(pd.offsets.MonthBegin()) == 12
 
 
+def test_conventional_periods_add_the_longer_cycles():
+    from forecastaudit.series import conventional_periods
+
+    assert conventional_periods("h") == (24, 168)
+    assert conventional_periods("D") == (7, 365)
+    assert conventional_periods("MS") == (12,)
+    assert conventional_periods("min") == ()
+
+
+def test_weekly_cycle_of_hourly_data_needs_no_confirmation():
+    """A period-168 model on an hourly index is fitted as written; a period of 6 on monthly
+    data is still refused, naming the periods the index has."""
+    import forecastaudit as fa
+    from forecastaudit.errors import SpecError
+    from forecastaudit.pipeline import resolve_series_and_spec
+
+    hours = pd.date_range("2026-03-02", periods=24 * 7 * 3, freq="h")
+    hourly = pd.Series(np.sin(np.arange(hours.size) * 2 * np.pi / 168), index=hours)
+    series, spec = resolve_series_and_spec(hourly, "ARIMA(1,0,0)x(0,1,1)168", None, None)
+    assert spec.period == 168 and series.period == 168
+    months = pd.period_range("2015-01", periods=60, freq="M")
+    monthly = pd.Series(np.arange(60.0), index=months)
+    with pytest.raises(SpecError, match=r"whose period is 12\. Write the model with period 12"):
+        fa.audit(monthly, "ARIMA(0,1,1)x(0,1,1)6", estimators=["statsforecast"])
+    with pytest.raises(SpecError, match="whose period is 24 or 168"):
+        resolve_series_and_spec(hourly, "ARIMA(0,1,1)x(0,1,1)12", None, None)
+
+
 # ---------------------------------------------------------------------- plain inputs
 
 
