@@ -386,10 +386,17 @@ def _public_name(private: str) -> str:
     return str(path.with_name(f"{stem}.pub.pem"))
 
 
+def signoff_sheet_names(record_file: str | Path) -> tuple[str, str]:
+    """File names of the sign-off sheet written beside ``record_file`` (HTML, Markdown)."""
+    stem = Path(record_file).stem
+    return f"{stem}.signoff.html", f"{stem}.signoff.md"
+
+
 def _cmd_sign_off(args: argparse.Namespace) -> int:
-    from forecastaudit.files import write_text_atomic
+    from forecastaudit.files import write_set
     from forecastaudit.record.document import dumps
     from forecastaudit.record.signing import add_signoff
+    from forecastaudit.report.signoff_sheet import render_signoff_html, render_signoff_markdown
 
     out = check_output_file(args.out or args.record)
     record = add_signoff(
@@ -400,8 +407,17 @@ def _cmd_sign_off(args: argparse.Namespace) -> int:
         comments=args.comments or "",
         date=args.date,
     )
-    write_text_atomic(out, dumps(record))
-    print(f"wrote {out}: {args.decision} by {record['signoff']['reviewer']}")
+    html_name, markdown_name = signoff_sheet_names(out)
+    texts = {out.name: dumps(record)}
+    if not args.no_sheet:
+        texts[html_name] = render_signoff_html(record, out.name)
+        texts[markdown_name] = render_signoff_markdown(record, out.name)
+    written = write_set(out.parent if str(out.parent) else Path("."), texts)
+    from forecastaudit.validation import plain
+
+    print(f"wrote {out}: {args.decision} by {plain(record['signoff']['reviewer'])}")
+    for path in written[1:]:
+        print(f"wrote {path}")
     return EXIT_PASS
 
 
@@ -422,15 +438,17 @@ def _cmd_verify(args: argparse.Namespace) -> int:
     from forecastaudit.record.document import load_record
 
     record = load_record(args.record, trusted_keys=args.trusted_key)
-    from forecastaudit.record.signing import verify_signatures
+    from forecastaudit.record.signing import signed_body_sha256, verify_signatures
+    from forecastaudit.validation import plain
 
     signers = verify_signatures(record, args.trusted_key)
     block = record.get("signoff")
     print(
         f"{args.record}: seal and signature valid; signed by trusted key(s) "
-        f"{', '.join(signers)}; verdict {record['verdict']}"
+        f"{', '.join(signers)}; verdict {record['verdict']}; signed content SHA-256 "
+        f"{signed_body_sha256(record)}"
         + (
-            f"; sign-off {block['decision']} by {block['reviewer']} on {block['date']}"
+            f"; sign-off {block['decision']} by {plain(block['reviewer'])} on {block['date']}"
             if block
             else "; no sign-off block"
         )
@@ -698,6 +716,11 @@ def build_parser() -> argparse.ArgumentParser:
     sign_off.add_argument("--comments", help="conditions, reservations or notes")
     sign_off.add_argument("--date", help="date of the decision, YYYY-MM-DD (default: today)")
     sign_off.add_argument("--out", help="write to this file instead of updating the record")
+    sign_off.add_argument(
+        "--no-sheet",
+        action="store_true",
+        help="do not write the one-page sign-off sheet (RECORD.signoff.html and .md) beside it",
+    )
     sign_off.set_defaults(func=_cmd_sign_off)
 
     sign = _add_command(

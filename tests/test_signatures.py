@@ -229,11 +229,23 @@ def test_cli_new_key_sign_off_sign_verify(
         )
         == EXIT_PASS
     )
+    # The one-page sheet beside the record names the record's digest and the decision.
+    sheet_html = (tmp_path / "record.signoff.html").read_text()
+    sheet_md = (tmp_path / "record.signoff.md").read_text()
+    from forecastaudit.record.signing import signed_body_sha256
+
+    digest = signed_body_sha256(load_record(record))
+    for sheet in (sheet_html, sheet_md):
+        assert digest in sheet and "R. Okafor" in sheet and "MRM-7 4.2" in sheet
+        assert "Rejected" in sheet and "FAIL" in sheet
     assert main(["sign", str(record), "--key", str(tmp_path / "okafor.pem")]) == EXIT_PASS
     capsys.readouterr()
     assert main(["verify", str(record), "--trusted-key", str(public)]) == EXIT_PASS
     out = capsys.readouterr().out
     assert "signature valid" in out and "sign-off rejected by R. Okafor on 2026-12-03" in out
+    # Signing changes the seal but not the digest the sheet names, which verify prints.
+    assert load_record(record)["content_sha256"] not in sheet_md
+    assert f"signed content SHA-256 {digest}" in out
     # The edited, re-digested record is refused by verify and by drift --trusted-key.
     forged = _write(tmp_path, "forged.json", _forged(load_record(record)))
     assert main(["verify", str(forged), "--trusted-key", str(public)]) == EXIT_USAGE
@@ -245,3 +257,20 @@ def test_cli_new_key_sign_off_sign_verify(
     args = ["--reviewer", "x", "--decision", "approved", "--policy", "p"]
     assert main(["sign-off", str(record), *args]) == EXIT_USAGE
     assert record.read_bytes() == before
+
+
+def test_signoff_sheet_escapes_and_can_be_left_out(failing_record: dict, tmp_path: Path) -> None:
+    from forecastaudit.cli import EXIT_PASS, main
+
+    record = _write(tmp_path, "a.json", failing_record)
+    reviewer = "<script>alert(1)</script> | *Q*"
+    args = ["--reviewer", reviewer, "--decision", "approved-with-conditions", "--policy", "P"]
+    assert main(["sign-off", str(record), *args, "--out", str(tmp_path / "b.json")]) == EXIT_PASS
+    html = (tmp_path / "b.signoff.html").read_text()
+    assert "<script>" not in html and "&lt;script&gt;" in html
+    assert "Approved with conditions" in html
+    assert "\\|" in (tmp_path / "b.signoff.md").read_text()  # a pipe cannot break the table
+    assert json.loads(record.read_text()).get("signoff") is None  # --out leaves the input alone
+    assert main(["sign-off", str(record), *args, "--no-sheet"]) == EXIT_PASS
+    assert not (tmp_path / "a.signoff.html").exists()
+    assert json.loads(record.read_text())["signoff"]["reviewer"] == reviewer

@@ -43,6 +43,7 @@ __all__ = [
     "load_private_key",
     "load_public_key",
     "sign_record",
+    "signed_body_sha256",
     "signed_by",
     "signoff_block",
     "verify_signatures",
@@ -66,6 +67,16 @@ def _canonical(value: Any) -> bytes:
 
 def _signed_body(record: Mapping[str, Any]) -> dict[str, Any]:
     return {k: v for k, v in record.items() if k not in UNSIGNED_FIELDS}
+
+
+def signed_body_sha256(record: Mapping[str, Any]) -> str:
+    """SHA-256 of the part of ``record`` that signatures cover (all but the seal and the
+    signatures), in canonical JSON.
+
+    Unlike the seal (``content_sha256``), it does not change when the record is signed, so a
+    sign-off sheet written before signing names the same value as the signed record.
+    """
+    return hashlib.sha256(_canonical(_signed_body(record))).hexdigest()
 
 
 def _message(record: Mapping[str, Any], signer: Mapping[str, Any]) -> bytes:
