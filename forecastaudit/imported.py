@@ -432,11 +432,6 @@ def _record_from(data: dict[str, Any], where: str, source: str) -> ImportRecord:
         spec = ModelSpec.parse(data["specification"])
     except SpecError as exc:
         raise ImportRecordError(f"{where}: its specification cannot be read: {exc}") from None
-    if spec.regressors:
-        raise ImportRecordError(
-            f"{where}: import records of models with regressors ({spec}) are not supported "
-            "yet; import the estimate of the model without them, or fit it here."
-        )
     conventions = data["conventions"]
     declarations = Declarations(
         ma_sign=conventions["ma_sign"],

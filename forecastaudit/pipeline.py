@@ -446,7 +446,7 @@ def _audit_stages(
     early: list[Finding] = []
     # Estimates made elsewhere join as columns of their own, already canonical.
     for record in records:
-        estimates[record.label] = _imported(record, y_t, spec, n_w)
+        estimates[record.label] = _imported(record, y_t, spec, n_w, x)
         fc, problem = _imported_forecast(record, spec, steps, level_tuple)
         library_forecasts[record.label] = fc
         if problem:
@@ -546,7 +546,9 @@ def _audit_stages(
     findings += early
     findings += [Finding("input-precision", "warn", None, "data", note) for note in series.notes]
     for record in records:
-        check = check_declarations(record, y_t, spec, float(best), gap_tolerance=tol.loglike_atol)
+        check = check_declarations(
+            record, y_t, spec, float(best), gap_tolerance=tol.loglike_atol, regressors=x
+        )
         findings.append(
             declaration_finding(check, record, production=production in (record.label, None))
         )
@@ -699,14 +701,20 @@ def _resolve_imports(
     return records
 
 
-def _imported(record: ImportRecord, y_t: np.ndarray, spec: ModelSpec, n_w: int) -> Estimate:
+def _imported(
+    record: ImportRecord,
+    y_t: np.ndarray,
+    spec: ModelSpec,
+    n_w: int,
+    x: np.ndarray | None = None,
+) -> Estimate:
     """The canonical estimate of a record; a missing sigma2 is the maximum-likelihood one at
     its coefficients."""
     from forecastaudit import reference as _reference
 
     estimate = imported_estimate(record, n_w)
     if not math.isfinite(estimate.params["sigma2"]):
-        trial = _reference.evaluate(y_t, spec, {**estimate.params, "sigma2": 1.0})
+        trial = _reference.evaluate(y_t, spec, {**estimate.params, "sigma2": 1.0}, regressors=x)
         estimate.params["sigma2"] = float(trial.sigma2_hat)
         estimate.notes.append(
             "The record reports no sigma2: the maximum-likelihood value at its coefficients "

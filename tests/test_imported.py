@@ -311,8 +311,8 @@ def test_parameters_and_declarations_must_fit_the_spec(cedar_record: dict[str, A
     with pytest.raises(ImportRecordError, match="has a mean"):
         read_import(no_constant)
     regressors = dict(copy.deepcopy(cedar_record), specification="ARIMA(1,0,1) +mean +x(price)")
-    with pytest.raises(ImportRecordError, match="regressors"):
-        read_import(regressors)
+    with pytest.raises(ImportRecordError, match="missing x_price; not part of"):
+        read_import(regressors)  # a regression coefficient is a parameter like any other
     unknown = copy.deepcopy(cedar_record)
     unknown["conventions"]["ma_sign"] = "negative"
     with pytest.raises(ImportRecordError, match="conventions/ma_sign"):

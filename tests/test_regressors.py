@@ -543,3 +543,72 @@ def test_audit_shows_drift_regressions_and_the_mean_agree() -> None:
     assert "intercept" in conversions["statsmodels-sarimax"]
     markdown = result.to_markdown()
     assert "+x(price,promo)" in markdown and "x_promo" in markdown
+
+
+# ---------------------------------------------------------------------- estimates made elsewhere
+def test_imported_estimate_with_regressors_is_normalised_and_checked(stationary_case) -> None:
+    """A regression with ARIMA errors typed in from software elsewhere, the way a package
+    in SARIMAX's form reports it (an intercept in the error equation, c = mu (1 - phi), MA
+    with a minus sign). The values typed in are the reference optimum (an optimum, so
+    nothing depends on where an optimiser stopped); the reported log-likelihood is
+    statsmodels' own at those values (SARIMAX with exog, exact for a stationary ARMA: a
+    general-purpose library). Declared correctly it agrees; declared as a mean it is named."""
+    from statsmodels.tsa.statespace.sarimax import SARIMAX
+
+    y, x, future, spec = stationary_case
+    fit = fit_reference(y.to_numpy(), spec, {}, regressors=x.to_numpy())
+    p = {k: float(v) for k, v in fit.params.items()}
+    intercept = p["mu"] * (1.0 - p["ar_lag1"])
+    model = SARIMAX(y.to_numpy(), exog=x.to_numpy(), order=(1, 0, 1), trend="c")
+    assert model.param_names == ["intercept", "x1", "x2", "ar.L1", "ma.L1", "sigma2"]
+    vector = [intercept, p["x_price"], p["x_promo"], p["ar_lag1"], p["ma_lag1"], p["sigma2"]]
+    reported = float(model.loglike(np.array(vector)))
+    assert reported == pytest.approx(fit.loglike, abs=1e-6)  # the same exact likelihood
+
+    def record(label: str, constant: str) -> dict:
+        return {
+            "record": "forecastaudit-import",
+            "format_version": 1,
+            "label": label,
+            "software": {"name": "Juniper Stats", "version": "3.2"},
+            "specification": str(spec),
+            "conventions": {
+                "ma_sign": "minus",
+                "constant": constant,
+                "sigma2": "maximum-likelihood",
+            },
+            "parameters": {
+                "ar_lag1": float(f"{p['ar_lag1']:.6g}"),
+                "ma_lag1": float(f"{-p['ma_lag1']:.6g}"),
+                "constant": float(f"{intercept:.6g}"),
+                "x_price": float(f"{p['x_price']:.6g}"),
+                "x_promo": float(f"{p['x_promo']:.6g}"),
+                "sigma2": float(f"{p['sigma2']:.6g}"),
+            },
+            "loglike": {"value": round(reported, 4), "definition": "exact Gaussian"},
+        }
+
+    before = (y.copy(), x.copy())
+    result = fa.audit(
+        y,
+        spec,
+        estimators=["statsmodels-sarimax"],
+        regressors=x,
+        future_regressors=future,
+        imported=[record("juniper", "intercept"), record("juniper-as-mean", "mean")],
+    )
+    pd.testing.assert_series_equal(y, before[0])
+    pd.testing.assert_frame_equal(x, before[1])
+    e = result.estimates["juniper"]
+    assert e.origin == "imported"
+    assert e.params["ma_lag1"] == pytest.approx(p["ma_lag1"], rel=1e-5)
+    assert e.params["mu"] == pytest.approx(p["mu"], rel=1e-4)
+    for name in ("x_price", "x_promo"):
+        assert abs(e.params[name] - p[name]) < 0.01 * result.standard_errors[name], name
+    assert result.likelihoods.at["juniper", "gap_to_best"] < 1e-4
+    declared = {f.estimator: f for f in result.findings if f.kind == "declared-conventions"}
+    assert declared["juniper"].severity == "info"
+    assert "are consistent" in declared["juniper"].message
+    wrong = declared["juniper-as-mean"]
+    assert wrong.severity == "warn" and "constant 'intercept' instead of 'mean'" in wrong.message
+    assert "x_price" in result.to_markdown()

@@ -126,6 +126,7 @@ def _score(
     y_t: np.ndarray,
     spec: ModelSpec,
     n_w: int,
+    regressors: np.ndarray | None = None,
 ) -> tuple[float, float]:
     """Reference log-likelihood on the declared scale (at the given or profiled sigma2), and
     the profiled one on the transformed scale."""
@@ -135,7 +136,7 @@ def _score(
     params = dict(normalised.params)
     given = normalised.sigma2_given
     params.setdefault("sigma2", 1.0)
-    ev = evaluate(y_t, spec, params)
+    ev = evaluate(y_t, spec, params, regressors=regressors)
     original = declarations.loglike_scale == "original"
     if given:
         value = ev.loglike_original_scale if original else ev.loglike
@@ -151,9 +152,10 @@ def _trial(
     spec: ModelSpec,
     n_w: int,
     optimum: float,
+    regressors: np.ndarray | None = None,
 ) -> DeclarationTrial | None:
     try:
-        value, profiled = _score(record, declarations, y_t, spec, n_w)
+        value, profiled = _score(record, declarations, y_t, spec, n_w, regressors)
     except ImportRecordError:
         return None  # a declaration these values cannot be in (an intercept with a unit root)
     allowance = RESOLUTION * max(1.0, abs(value)) if math.isfinite(value) else math.nan
@@ -166,7 +168,7 @@ def _trial(
             continue
         moved = dataclasses.replace(record, parameters={**record.parameters, name: typed + step})
         try:
-            shifted, _ = _score(moved, declarations, y_t, spec, n_w)
+            shifted, _ = _score(moved, declarations, y_t, spec, n_w, regressors)
         except ImportRecordError:
             continue
         if math.isfinite(shifted) and math.isfinite(value):
@@ -189,6 +191,7 @@ def check_declarations(
     optimum: float,
     *,
     gap_tolerance: float,
+    regressors: np.ndarray | None = None,
 ) -> DeclarationCheck:
     """Check an import record's declarations against its own numbers.
 
@@ -204,6 +207,9 @@ def check_declarations(
     gap_tolerance : float
         Without a reported log-likelihood, the gap to the optimum under which an estimate
         counts as at the optimum (the audit's log-likelihood tolerance).
+    regressors : numpy.ndarray, optional
+        The regressor columns of a model with regressors, after the transform's rows
+        (shape ``(n, k)``, in ``spec.regressors`` order).
 
     Returns
     -------
@@ -219,7 +225,7 @@ def check_declarations(
             declarations.sigma2 != own.sigma2 or declarations.loglike_scale != own.loglike_scale
         ):
             continue  # without a log-likelihood only the coefficients can be checked
-        trial = _trial(record, declarations, y_t, spec, n_w, optimum)
+        trial = _trial(record, declarations, y_t, spec, n_w, optimum, regressors)
         if trial is None:
             continue
         # Declarations that give the same numbers (intercept and mean without AR terms)
