@@ -300,7 +300,7 @@ def _cmd_panel(args: argparse.Namespace) -> int:
 
 
 def _cmd_compare_models(args: argparse.Namespace) -> int:
-    from forecastaudit.files import write_text_atomic
+    from forecastaudit.files import write_set
     from forecastaudit.model_choice import compare_models
     from forecastaudit.record.document import dumps
     from forecastaudit.spec import ModelSpec
@@ -310,7 +310,16 @@ def _cmd_compare_models(args: argparse.Namespace) -> int:
     specs = [ModelSpec.parse(text) for text in args.model]
     if len(specs) < 2:
         raise ForecastAuditError("compare-models needs at least two --model options.")
-    series = read_series(args.data, args.column, args.date_column)
+    # The regressor columns any candidate names (+x(...)) are read from the same file.
+    columns = tuple(dict.fromkeys(c for spec in specs for c in spec.regressors))
+    if args.future and not columns:
+        raise SpecError(
+            "--future gives future regressor values, but no --model names regressors "
+            "(+x(price,promo))."
+        )
+    series = read_series(args.data, args.column, args.date_column, exclude=columns)
+    regressors = read_regressors(args.data, columns, args.date_column) if columns else None
+    future = read_regressors(args.future, columns) if args.future and columns else None
     estimators = args.estimators.split(",") if args.estimators else None
     result = compare_models(
         series,
@@ -319,6 +328,8 @@ def _cmd_compare_models(args: argparse.Namespace) -> int:
         origins=args.origins,
         estimators=estimators,
         period=args.period,
+        regressors=regressors,
+        future_regressors=future,
     )
     print(result)
     if args.out:
@@ -326,12 +337,12 @@ def _cmd_compare_models(args: argparse.Namespace) -> int:
         # all three are rendered before any is written.
         target = Path(args.out)
         texts = {
-            target: dumps(result.to_dict()),
-            target.with_suffix(".html"): result.to_html(),
-            target.with_suffix(".md"): result.to_markdown(),
+            target.name: dumps(result.to_dict()),
+            target.with_suffix(".html").name: result.to_html(),
+            target.with_suffix(".md").name: result.to_markdown(),
         }
-        for path, text in texts.items():
-            print(f"wrote {write_text_atomic(path, text)}")
+        for path in write_set(target.parent if str(target.parent) else Path("."), texts):
+            print(f"wrote {path}")
     return EXIT_PASS if result.stable else EXIT_FINDINGS
 
 
@@ -677,6 +688,13 @@ def build_parser() -> argparse.ArgumentParser:
     )
     choose.add_argument("--holdout", type=int, required=True, help="steps held out per origin")
     choose.add_argument("--origins", type=int, default=1, help="holdout windows (default: 1)")
+    choose.add_argument(
+        "--future",
+        help=(
+            "CSV or Parquet file of the regressors' values over the forecast periods, for "
+            "candidates with regressors (+x(price,promo); their columns are read from DATA)"
+        ),
+    )
     _add_period_and_estimators(choose, "comma-separated estimator keys (default: all)")
     choose.add_argument(
         "--out",

@@ -133,6 +133,8 @@ def compare_models(
     estimators: Iterable[str] | None = None,
     tolerances: Tolerances | Mapping[str, float] | None = None,
     period: int | None = None,
+    regressors: pd.DataFrame | None = None,
+    future_regressors: pd.DataFrame | None = None,
 ) -> ModelChoiceResult:
     """Does the choice between candidate models depend on the implementation?
 
@@ -158,6 +160,13 @@ def compare_models(
         ``accuracy_rtol`` decides whether a flip between close MASE values is a warning.
     period : int, optional
         Seasonal period when the series' index does not give one.
+    regressors, future_regressors : pandas.DataFrame, optional
+        The regressor columns, over the series and over the forecast horizon after it, for
+        candidates that name regressors (``+x(price,promo)``); each such candidate uses its
+        own columns of these frames, and candidates without regressors use none. As in
+        :func:`forecastaudit.audit`, holdout forecasts use the held-out rows as known
+        future values. Models with different regressors and the same differencing are
+        fitted to the same data, so their AICc values compare. Not modified.
 
     Returns
     -------
@@ -187,11 +196,29 @@ def compare_models(
         if isinstance(tolerances, Tolerances)
         else Tolerances.from_dict(dict(tolerances or {}))
     )
+    if (regressors is not None or future_regressors is not None) and not any(
+        spec.regressors for spec in parsed
+    ):
+        raise SpecError(
+            "Regressors were given, but no candidate model names any: add the columns to the "
+            "models that use them, e.g. 'ARIMA(1,0,1) +mean +x(price,promo)'."
+        )
     started = time.perf_counter()
     reports: dict[str, Any] = {}
     rows = []
     for spec in parsed:
-        report = audit(y, spec, estimators, tol, period=period, holdout=holdout, origins=origins)
+        uses = bool(spec.regressors)
+        report = audit(
+            y,
+            spec,
+            estimators,
+            tol,
+            period=period,
+            holdout=holdout,
+            origins=origins,
+            regressors=regressors if uses else None,
+            future_regressors=future_regressors if uses else None,
+        )
         label = str(report.spec)
         reports[label] = report
         accuracy = report.holdout.accuracy if report.holdout is not None else pd.DataFrame()

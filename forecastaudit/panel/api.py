@@ -98,17 +98,19 @@ def _settings(options: dict[str, Any], estimators: list[str]) -> dict[str, Any]:
 
 def _write_series_files(folder: Path, series_id: str, value: dict[str, Any]) -> dict[str, str]:
     """Write a failing series' record and reports; return their paths relative to folder."""
-    from forecastaudit.files import write_text_atomic
+    from forecastaudit.files import write_set
     from forecastaudit.record.document import dumps
 
     name = _slug(series_id)
-    target = folder / SERIES_FOLDER
     files: dict[str, str] = {}
     texts = {"json": dumps(value["record"]), "html": value.get("html"), "md": value.get("markdown")}
-    for suffix, text in texts.items():
-        if text is not None:
-            write_text_atomic(target / f"{name}.{suffix}", text)
-            files["markdown" if suffix == "md" else suffix] = f"{SERIES_FOLDER}/{name}.{suffix}"
+    present = {suffix: text for suffix, text in texts.items() if text is not None}
+    # The record and its reports as one set: all of them, or none.
+    write_set(
+        folder / SERIES_FOLDER, {f"{name}.{suffix}": text for suffix, text in present.items()}
+    )
+    for suffix in present:
+        files["markdown" if suffix == "md" else suffix] = f"{SERIES_FOLDER}/{name}.{suffix}"
     return files
 
 
@@ -325,12 +327,11 @@ def _run(
 
 
 def _write_panel_files(result: PanelResult, folder: Path) -> None:
-    from forecastaudit.files import write_text_atomic
+    from forecastaudit.files import write_set
 
     texts = {
         SUMMARY_NAME: result.summary.to_csv(),
         HTML_NAME: result.to_html(),
         MARKDOWN_NAME: result.to_markdown(),
     }
-    for name, text in texts.items():
-        write_text_atomic(folder / name, text)
+    write_set(folder, texts)  # the summary and both reports as one set
