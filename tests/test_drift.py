@@ -44,6 +44,27 @@ def test_changed_tolerances_are_listed(record: dict) -> None:
     assert drift.table.empty
 
 
+def test_looser_tolerances_in_the_new_record_do_not_loosen_the_check(record: dict) -> None:
+    """A re-audit with tolerances fifty times looser, of a moved estimate: the change is
+    judged by the signed-off record's (stricter) tolerance, whichever record is looser."""
+    loose = {"parameter_se_fraction": 5.0, "parameter_atol": 0.1, "loglike_atol": 0.5}
+    looser = fa.audit(_series(), SPEC, estimators=ESTIMATORS, tolerances=loose).to_dict()
+    looser["estimates"]["statsforecast"]["params"]["ar_lag1"] += 0.05
+    looser["content_sha256"] = content_digest(looser)
+    for old, new in ((record, looser), (looser, record)):
+        drift = fa.compare_records(old, new)
+        row = drift.table[
+            (drift.table["estimator"] == "statsforecast") & (drift.table["quantity"] == "ar_lag1")
+        ].iloc[0]
+        se = record["reference"]["standard_errors"]["ar_lag1"]
+        assert row["tolerance"] == pytest.approx(max(0.1 * se, 2e-3))  # the defaults
+        assert bool(row["beyond"]) and drift.verdict == "drift beyond tolerance"
+        assert any("judged by the stricter" in line for line in drift.changes)
+    # Asked for explicitly, a tolerance is used as given.
+    given = fa.compare_records(record, looser, fa.Tolerances.from_dict(loose))
+    assert given.passed
+
+
 def test_moved_parameter_is_a_row_beyond_tolerance(record: dict) -> None:
     moved = copy.deepcopy(record)
     params = moved["estimates"]["statsforecast"]["params"]

@@ -7,8 +7,10 @@ record on one side, the new one on the other. Records are read with
 
 from __future__ import annotations
 
+import dataclasses
 import math
 import os
+from collections.abc import Mapping
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -18,7 +20,7 @@ from forecastaudit.diagnosis.tolerances import Tolerances
 from forecastaudit.errors import RecordError
 from forecastaudit.record.document import check_record, load_record
 
-__all__ = ["RecordChanges", "compare_records"]
+__all__ = ["RecordChanges", "compare_records", "stricter_tolerances"]
 
 
 def __getattr__(name: str) -> object:
@@ -220,10 +222,17 @@ def _setting_changes(old: dict[str, Any], new: dict[str, Any]) -> list[str]:
             f"forecastaudit {old['provenance']['forecastaudit']} -> "
             f"{new['provenance']['forecastaudit']}"
         )
+    moved = []
     for name, item in sorted(new["tolerances"].items()):
         before = old["tolerances"].get(name, {}).get("value")
         if before != item["value"]:
-            out.append(f"tolerance {name} {before} -> {item['value']}")
+            moved.append(f"tolerance {name} {before} -> {item['value']}")
+    if moved:
+        out += moved
+        out.append(
+            "the records state different tolerances: each change is judged by the stricter "
+            "of the two values"
+        )
     for name in sorted(set(old["options"]) | set(new["options"])):
         if old["options"].get(name) != new["options"].get(name):
             out.append(
@@ -281,7 +290,9 @@ def compare_records(
     old, new : dict or path
         The signed-off record and the new one (paths are read with ``load_record``).
     tolerances : Tolerances, optional
-        Tolerances for the drift; default those stated in the new record.
+        Tolerances for the drift; default the stricter of the values the two records state,
+        tolerance by tolerance (see :func:`stricter_tolerances`), so that neither record's
+        looser setting loosens the comparison.
     trusted_keys : public key or sequence of them, optional
         Reviewers' Ed25519 public keys. When given, the old (signed-off) record must carry a
         valid signature by one of them; the new record's signatures, if any, are checked too.
@@ -307,6 +318,35 @@ def compare_records(
     return compare_loaded(a, b, tolerances)
 
 
+def stricter_tolerances(a: Mapping[str, Any], b: Mapping[str, Any]) -> Tolerances:
+    """Per tolerance, the smaller (stricter) of the values the two records state.
+
+    A re-audit run with looser tolerances must not loosen the check against the signed-off
+    record, nor a signed-off record with loose ones the check of a stricter re-audit: the
+    comparison holds both records to the stricter value of each. A tolerance only one record
+    states is taken from it.
+    """
+    known = {f.name for f in dataclasses.fields(Tolerances)}
+    stated: dict[str, Any] = {}
+    for record in (a, b):
+        for name, item in (record.get("tolerances") or {}).items():
+            value = item.get("value") if isinstance(item, Mapping) else None
+            if name not in known or value is None:
+                continue
+            if name not in stated:
+                stated[name] = value
+            elif name in _LARGER_IS_STRICTER or isinstance(value, bool):
+                stated[name] = max(stated[name], value)
+            else:
+                stated[name] = min(stated[name], value)
+    return Tolerances.from_dict(stated)
+
+
+#: Tolerances for which a larger value asks more (the others allow more when larger); the
+#: ``fail_on_*`` switches are stricter when on.
+_LARGER_IS_STRICTER = frozenset({"min_independent_engines", "root_margin"})
+
+
 def compare_loaded(
     a: dict[str, Any], b: dict[str, Any], tolerances: Tolerances | None = None
 ) -> RecordChanges:
@@ -317,7 +357,7 @@ def compare_loaded(
     standard errors, ``tolerances``, ``options``, ``provenance`` and ``verdict``.
     """
     if tolerances is None:
-        tolerances = Tolerances.from_dict({k: v["value"] for k, v in b["tolerances"].items()})
+        tolerances = stricter_tolerances(a, b)
     tol = tolerances
     transforms = (a["spec"].get("transform"), b["spec"].get("transform"))
     if transforms[0] != transforms[1]:
