@@ -205,7 +205,7 @@ def _cmd_audit(args: argparse.Namespace) -> int:
         origins=args.origins,
         order_search=args.order_search,
         progress=not args.quiet,
-        production=args.production,
+        production=_production(args),
         imported=list(args.imports or []),
         regressors=regressors,
         future_regressors=future,
@@ -213,6 +213,14 @@ def _cmd_audit(args: argparse.Namespace) -> int:
     )
     report.invocation = invocation
     return _finish(report, Path(args.out) if args.out else None)
+
+
+def _production(args: argparse.Namespace) -> str:
+    """The --production value, or the default (which may give way to the first estimator
+    run) when the option is not given."""
+    from forecastaudit.adapters.registry import DEFAULT_PRODUCTION
+
+    return DEFAULT_PRODUCTION if args.production is None else args.production
 
 
 def _parse_environments(items: Sequence[str] | None) -> dict[str, Any] | None:
@@ -283,7 +291,7 @@ def _cmd_panel(args: argparse.Namespace) -> int:
         levels=_parse_levels(args.levels),
         holdout=args.holdout,
         origins=args.origins,
-        production=args.production,
+        production=_production(args),
         workers=args.workers,
         client=args.scheduler,
         time_limit=args.time_limit,
@@ -523,8 +531,11 @@ def _add_audit_options(parser: argparse.ArgumentParser) -> None:
     )
     parser.add_argument(
         "--production",
-        default="statsmodels-sarimax",
-        help="the estimator the team ships; the verdict is about it (default: %(default)s)",
+        help=(
+            "the estimator the team ships; the verdict is about it (default: "
+            "statsmodels-sarimax, or the first estimator run when it is not among them; a "
+            "name given here must be among the estimators run)"
+        ),
     )
     parser.add_argument("--horizon", type=int, help="steps to forecast (default: the period)")
     parser.add_argument(

@@ -12,7 +12,7 @@ import numpy as np
 import pandas as pd
 
 from forecastaudit.adapters.protocol import FitRequest
-from forecastaudit.adapters.registry import adapter_class, available_estimators
+from forecastaudit.adapters.registry import DEFAULT_PRODUCTION, adapter_class, available_estimators
 from forecastaudit.conventions import (
     coefficient_names,
     difference,
@@ -79,7 +79,7 @@ from forecastaudit.spec import ModelSpec
 from forecastaudit.validation import check_levels, echo, limit_error, plain, whole_number
 
 #: The production estimator when the caller names none (see :func:`audit`).
-DEFAULT_PRODUCTION = "statsmodels-sarimax"
+
 #: When the reference likelihood is mapped over a two-coefficient model's surface.
 GRID_CHOICES = ("always", "on-failure")
 
@@ -765,8 +765,8 @@ def _resolve_production(
             f"{type(production).__name__}."
         )
     if production in keys:
-        return production
-    if production == DEFAULT_PRODUCTION:
+        return str(production)
+    if production is DEFAULT_PRODUCTION:  # not named by the caller: the first estimator run
         return keys[0]
     raise EstimatorError(
         f"The production estimator {production!r} is not among the estimators run "

@@ -255,6 +255,9 @@ CASES = [
          fix="leave it out"),
     case("production-not-run", audit, monthly, MODEL, only, production="pmdarima",
          error=EstimatorError, fix="add it to estimators"),
+    # Named explicitly, even the default's name is never swapped for another estimator.
+    case("production-default-name-not-run", audit, monthly, MODEL, only,
+         production="statsmodels-sarimax", error=EstimatorError, fix="add it to estimators"),
     # --- tolerances
     case("tolerance-unknown", audit, monthly, MODEL, only, {"loglike": 1}, error=ToleranceError,
          fix="known:"),

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -183,3 +184,97 @@ def test_a_trusted_key_that_is_not_a_key_is_a_usage_error(pytester: pytest.Pytes
     result = pytester.runpytest("--audit-trusted-key", "bad.pem")
     assert result.ret == pytest.ExitCode.USAGE_ERROR
     result.stderr.fnmatch_lines(["*--audit-trusted-key*not a readable PEM public key*"])
+
+
+# Where relative paths are read from. pytest's rootdir moves (an option's value that is an
+# existing path counts when pytest picks it), so the plugin never uses it: command-line paths
+# are read from the directory pytest was started in, ini paths from the ini file's folder.
+
+ESTIMATORS = ("--audit-estimators", "statsmodels-sarimax,statsforecast")
+
+
+def _signed_project_without_ini(
+    pytester: pytest.Pytester, monkeypatch: pytest.MonkeyPatch
+) -> tuple[Path, Path]:
+    """A project folder ``plugin/`` (no ini file anywhere) holding one signed baseline, a
+    reviewer's key pair in the sibling folder ``sig/``, and the working directory in
+    ``plugin/``. Returns the project folder and its baseline file."""
+    from forecastaudit.record.document import dumps, load_record
+
+    project = pytester.mkdir("plugin")
+    (project / "test_model.py").write_text(TEST_FILE.replace("SHIFT", "0.0"))
+    keys = pytester.mkdir("sig")
+    fa.generate_key_pair(keys / "reviewer.pem", keys / "reviewer.pub.pem")
+    monkeypatch.chdir(project)
+    pytester.runpytest(*ESTIMATORS, "--audit-update-baselines").assert_outcomes(passed=1)
+    baseline = project / "audit-baselines" / "ar1-model.json"
+    signed = fa.sign_record(load_record(baseline), keys / "reviewer.pem")
+    baseline.write_text(dumps(signed), encoding="utf-8")
+    return project, baseline
+
+
+def test_a_relative_key_on_the_command_line_is_read_from_the_start_directory(
+    pytester: pytest.Pytester, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    project, baseline = _signed_project_without_ini(pytester, monkeypatch)
+    assert baseline.parent == project / "audit-baselines"
+    result = pytester.runpytest(*ESTIMATORS, "--audit-trusted-key", "../sig/reviewer.pub.pem")
+    result.assert_outcomes(passed=1)
+    result.stdout.fnmatch_lines(
+        [f"forecastaudit: baselines {project / 'audit-baselines'}; *1 trusted key(s)"]
+    )
+    # A path that is right from the parent folder, but not from here, is a usage error that
+    # says where it was looked for.
+    result = pytester.runpytest(*ESTIMATORS, "--audit-trusted-key", "sig/reviewer.pub.pem")
+    assert result.ret == pytest.ExitCode.USAGE_ERROR
+    result.stderr.fnmatch_lines(
+        [
+            f"*Cannot read the public key {project / 'sig' / 'reviewer.pub.pem'}:*"
+            f"given on the command line is read from {project};*"
+        ]
+    )
+
+
+def test_an_absolute_key_elsewhere_does_not_move_the_baseline_folder(
+    pytester: pytest.Pytester, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    project, _ = _signed_project_without_ini(pytester, monkeypatch)
+    key = pytester.path / "sig" / "reviewer.pub.pem"
+    result = pytester.runpytest(*ESTIMATORS, "--audit-trusted-key", str(key))
+    # The key's path made pytest pick the common parent as its rootdir ...
+    result.stdout.fnmatch_lines([f"rootdir: {pytester.path}*"])
+    # ... yet the baselines are still read from the folder pytest was started in.
+    result.stdout.fnmatch_lines([f"forecastaudit: baselines {project / 'audit-baselines'};*"])
+    result.assert_outcomes(passed=1)
+    assert not (pytester.path / "audit-baselines").exists()
+
+
+def test_ini_paths_are_read_from_the_ini_files_folder(
+    pytester: pytest.Pytester, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    from forecastaudit.record.document import dumps, load_record
+
+    pytester.makeini(INI + "audit_baselines = records\naudit_trusted_keys = sig/reviewer.pub.pem\n")
+    keys = pytester.mkdir("sig")
+    fa.generate_key_pair(keys / "reviewer.pem", keys / "reviewer.pub.pem")
+    tests = pytester.mkdir("tests")
+    (tests / "test_model.py").write_text(TEST_FILE.replace("SHIFT", "0.0"))
+    monkeypatch.chdir(tests)
+    pytester.runpytest("--audit-update-baselines").assert_outcomes(passed=1)
+    baseline = pytester.path / "records" / "ar1-model.json"
+    assert sorted(p.name for p in (pytester.path / "records").iterdir()) == ["ar1-model.json"]
+    assert not (tests / "records").exists()
+    # The unsigned baseline fails against the ini file's key: the key was found and used.
+    result = pytester.runpytest()
+    result.assert_outcomes(failed=1)
+    result.stdout.fnmatch_lines(["*cannot be used*is not signed*"])
+    signed = fa.sign_record(load_record(baseline), keys / "reviewer.pem")
+    baseline.write_text(dumps(signed), encoding="utf-8")
+    result = pytester.runpytest()
+    result.assert_outcomes(passed=1)
+    result.stdout.fnmatch_lines(
+        [f"forecastaudit: baselines {pytester.path / 'records'}; *1 trusted key(s)"]
+    )
+    # The same key named on the command line is read from where pytest was started (tests/).
+    result = pytester.runpytest("--audit-trusted-key", "../sig/reviewer.pub.pem")
+    result.assert_outcomes(passed=1)

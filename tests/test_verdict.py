@@ -81,6 +81,24 @@ def test_unknown_production_estimator_is_refused():
         fa.audit(fa.load_demo(), fa.DEMO_SPEC, estimators=TWO, production="pmdarima")
 
 
+def test_production_default_gives_way_but_a_named_one_never_does(tmp_path):
+    """Not named, the production estimator is statsmodels-sarimax or, when it is not run,
+    the first estimator run; named (in the API or the CLI), it must be among those run."""
+    from forecastaudit.cli import EXIT_USAGE, main
+
+    y = fa.load_demo()
+    result = fa.audit(y, fa.DEMO_SPEC, estimators=["statsforecast"])
+    assert result.production == "statsforecast"
+    with pytest.raises(fa.EstimatorError, match="not among the estimators run"):
+        fa.audit(y, fa.DEMO_SPEC, estimators=["statsforecast"], production="statsmodels-sarimax")
+    data = tmp_path / "units.csv"
+    y.rename_axis("month").to_csv(data)
+    args = ["audit", str(data), "--model", str(fa.DEMO_SPEC), "--estimators", "statsforecast"]
+    out = tmp_path / "out"
+    code = main([*args, "--production", "statsmodels-sarimax", "--out", str(out), "--quiet"])
+    assert code == EXIT_USAGE and not out.exists()
+
+
 def test_large_level_is_a_difference_of_objective_with_its_remedy():
     result = fa.audit(large_level_series(), SEASONAL, estimators=TWO)
     (cause,) = _causes(result, "statsmodels-sarimax")

@@ -66,6 +66,19 @@ _FROM_ENTRY_POINTS: dict[str, set[tuple[str, str]]] = {}
 _loaded = False
 
 
+class _DefaultProduction(str):
+    """The production estimator when none is named: statsmodels-sarimax, or the first
+    estimator run when it is not among them. A name passed explicitly, even this one, is
+    never swapped for another: it must be among the estimators run (compared by identity,
+    so the default can be told from the same name given)."""
+
+    __slots__ = ()
+
+
+#: Default of every ``production`` argument and option.
+DEFAULT_PRODUCTION: str = _DefaultProduction("statsmodels-sarimax")
+
+
 def register(cls: type[T]) -> type[T]:
     """Class decorator adding an adapter class to the registry under ``(cls.kind, cls.key)``.
 

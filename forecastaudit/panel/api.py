@@ -10,7 +10,12 @@ from collections.abc import Iterable, Mapping, Sequence
 from pathlib import Path
 from typing import Any
 
-from forecastaudit.adapters.registry import adapter_class, available_estimators, get_adapter
+from forecastaudit.adapters.registry import (
+    DEFAULT_PRODUCTION,
+    adapter_class,
+    available_estimators,
+    get_adapter,
+)
 from forecastaudit.diagnosis.tolerances import Tolerances
 from forecastaudit.errors import EstimatorError, SpecError
 from forecastaudit.panel.data import PanelSeries, read_panel
@@ -128,7 +133,7 @@ def audit_panel(
     levels: Sequence[float] = (80.0, 95.0),
     holdout: int | None = None,
     origins: int = 1,
-    production: str | None = "statsmodels-sarimax",
+    production: str | None = DEFAULT_PRODUCTION,
     workers: int | Backend | None = None,
     client: Any = None,
     time_limit: float | None = DEFAULT_SERIES_TIME_LIMIT,
