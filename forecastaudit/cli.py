@@ -16,6 +16,7 @@ for it):
 from __future__ import annotations
 
 import argparse
+import os
 import sys
 import traceback
 from collections.abc import Sequence
@@ -807,12 +808,62 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
+class _StdoutReaderMayLeave:
+    """Standard output that keeps the run going when its reader goes away.
+
+    ``forecastaudit audit ... | head -1`` closes the pipe after one line; the audit must
+    still write its files and exit with its own code, not fail on the next print. Once the
+    pipe is gone, output is dropped and file descriptor 1 is pointed at the null device, so
+    that Python's final flush raises nothing either.
+    """
+
+    def __init__(self, stream: Any) -> None:
+        self.stream = stream
+        self.gone = False
+
+    def write(self, text: str) -> int:
+        if not self.gone:
+            try:
+                return int(self.stream.write(text))
+            except BrokenPipeError:
+                self._left()
+        return len(text)
+
+    def flush(self) -> None:
+        if not self.gone:
+            try:
+                self.stream.flush()
+            except BrokenPipeError:
+                self._left()
+
+    def _left(self) -> None:
+        self.gone = True
+        try:
+            null = os.open(os.devnull, os.O_WRONLY)
+            os.dup2(null, self.stream.fileno())
+            os.close(null)
+        except (OSError, ValueError, AttributeError):
+            pass  # not a real file (a test's capture): dropping the output is enough
+
+    def __getattr__(self, name: str) -> Any:
+        return getattr(self.stream, name)
+
+
 def main(argv: Sequence[str] | None = None) -> int:
     """Entry point of the ``forecastaudit`` command; returns the exit code."""
     parser = build_parser()
     # argparse exits itself: 0 after --help and --version, 2 (EXIT_USAGE) on bad usage.
     args = parser.parse_args(argv)
     args.argv = [str(a) for a in (sys.argv[1:] if argv is None else argv)]
+    guarded = _StdoutReaderMayLeave(sys.stdout)
+    sys.stdout = guarded  # type: ignore[assignment]
+    try:
+        return _run(args)
+    finally:
+        sys.stdout = guarded.stream
+
+
+def _run(args: argparse.Namespace) -> int:
     try:
         return int(args.func(args))
     except NoEstimateError as exc:

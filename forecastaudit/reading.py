@@ -4,14 +4,20 @@ The file is read as it is: nothing is sorted, filled or resampled behind the cal
 A time column is recognised only when it holds dates or periods as text (``2011-01-31``,
 ``2011-01``, ``1998Q1``) or as a date type; a column of integers is never taken for
 timestamps. Problems get a :class:`~forecastaudit.errors.SeriesError` that names the file,
-the column and the fix; no pandas warning or traceback reaches the caller.
+the column (or the line) and the fix; no pandas warning or traceback reaches the caller.
+
+A CSV file is checked as text before pandas reads it (a binary file, one saved as UTF-16 or
+in another encoding than UTF-8, an empty file), and after: a row with more or fewer fields
+than the header, a header with no data rows. Such files are refused, never guessed at.
 """
 
 from __future__ import annotations
 
+import codecs
+import csv
 import re
 import warnings
-from collections.abc import Sequence
+from collections.abc import Iterator, Sequence
 from pathlib import Path
 from typing import Any
 
@@ -29,26 +35,249 @@ _OFFSET_RE = re.compile(r"(?:Z|[+-]\d{2}(?::?\d{2})?)$")
 _PERIOD_TEXT = r"\d{4}[-/ ]?Q[1-4]|\d{4}-\d{2}"
 
 
+# Suffixes from which pandas infers a compressed CSV; such files are binary by design.
+_COMPRESSED = (".gz", ".bz2", ".zip", ".xz", ".zst", ".tar")
+# How some common binary files begin, and what they are.
+_SIGNATURES: tuple[tuple[bytes, str], ...] = (
+    (b"PAR1", "a Parquet file"),
+    (b"\x89PNG", "a PNG image"),
+    (b"\xff\xd8\xff", "a JPEG image"),
+    (b"%PDF", "a PDF document"),
+    (b"PK\x03\x04", "a ZIP archive (an .xlsx workbook is one)"),
+    (b"\xd0\xcf\x11\xe0", "an older Office file (such as .xls)"),
+    (b"\x1f\x8b", "gzip-compressed data"),
+)
+# Bytes read to tell text from binary data.
+_SNIFF_BYTES = 8192
+# Share of characters of those bytes that may be unreadable or control characters in a
+# text file (our choice: a CSV in another encoding has a few; binary data has many).
+_BINARY_SHARE = 0.1
+_SAVE_AS_UTF8 = "Save the file as UTF-8 (a spreadsheet calls it 'CSV UTF-8') and re-run."
+_ONE_FIELD_PER_COLUMN = (
+    "Give every row one field per column of the header (look for a stray comma or a value "
+    "in the wrong place; a missing value is an empty field)."
+)
+
+
 def read_table(path: str | Path) -> pd.DataFrame:
-    """Read a CSV or Parquet file (by its suffix: .parquet or .pq, else CSV)."""
+    """Read a CSV or Parquet file (by its suffix: .parquet or .pq, else CSV).
+
+    Parameters
+    ----------
+    path : str or Path
+        The file. A CSV file must be UTF-8 text with a header row; a suffix of a
+        compressed file (``.gz``, ``.zip``, ...) reads it compressed, as pandas does.
+
+    Returns
+    -------
+    pandas.DataFrame
+        The table as it is in the file, with a default (position) index.
+
+    Raises
+    ------
+    SeriesError
+        When the file is missing, a folder, empty, binary, not UTF-8, has a row with more
+        or fewer fields than its header, or has no data rows; the message names the file,
+        the line where there is one, and the fix.
+    """
     path = Path(path)
+    where = plain(path)
     if not path.exists():
-        raise SeriesError(f"No such file: {plain(path)}; check the path.")
+        raise SeriesError(f"No such file: {where}; check the path.")
     if path.is_dir():
-        raise SeriesError(f"{plain(path)} is a folder; give the CSV or Parquet file in it.")
+        raise SeriesError(f"{where} is a folder; give the CSV or Parquet file in it.")
     suffix = path.suffix.lower()
+    if suffix in {".parquet", ".pq"}:
+        try:
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                frame = pd.read_parquet(path)
+        except Exception as exc:
+            raise SeriesError(
+                f"Cannot read {where} as Parquet: {type(exc).__name__}: {plain(exc, 200)}. "
+                "Check that it is a Parquet file (a .parquet or .pq suffix reads Parquet, "
+                "any other CSV)."
+            ) from None
+        if len(frame) == 0:
+            raise SeriesError(
+                f"{where} has columns ({_listed(frame.columns)}) but no rows; give a file "
+                "with one row per period."
+            )
+        return frame
+    if not suffix.endswith(_COMPRESSED):
+        _check_text(path, where)
+    frame = _read_csv(path, where)
+    if len(frame) == 0:
+        raise SeriesError(
+            f"{where} has a header but no data rows (columns: {_listed(frame.columns)}); "
+            "add one row per period below the header."
+        )
+    return frame
+
+
+def _listed(columns: Any) -> str:
+    return ", ".join(echo(c, 40) for c in list(columns)[:20])
+
+
+def _check_text(path: Path, where: str) -> None:
+    """Refuse a file that is empty or holds binary data, before pandas reads it."""
+    with path.open("rb") as handle:
+        head = handle.read(_SNIFF_BYTES)
+    if not head.strip():
+        raise SeriesError(
+            f"{where} is empty; give a CSV file with a header row and one row per period."
+        )
+    if head.startswith((b"\xff\xfe", b"\xfe\xff")):
+        raise SeriesError(f"{where} is saved as UTF-16 text, which is not read. {_SAVE_AS_UTF8}")
+    kind = next((what for start, what in _SIGNATURES if head.startswith(start)), None)
+    if kind is None and b"\x00" not in head:
+        text = codecs.getincrementaldecoder("utf-8")(errors="replace").decode(head, final=False)
+        odd = sum(
+            1
+            for char in text
+            if char == "\ufffd" or (ord(char) < 0x20 and char not in "\t\n\r\f\v") or char == "\x7f"
+        )
+        if odd <= _BINARY_SHARE * max(len(text), 1):
+            return
+    shown = f", and it begins as {kind} does" if kind else ""
+    fix = (
+        "If it is a Parquet file, give it a .parquet or .pq suffix; else give a CSV file."
+        if kind == "a Parquet file"
+        else "Give a CSV file (plain text, one row per period) or a .parquet file."
+    )
+    raise SeriesError(
+        f"{where} does not look like a text CSV file (it holds binary data{shown}). {fix}"
+    )
+
+
+def _read_csv(path: Path, where: str) -> pd.DataFrame:
+    """``pandas.read_csv`` with its errors and warnings turned into our messages."""
     try:
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore")
-            if suffix in {".parquet", ".pq"}:
-                return pd.read_parquet(path)
-            return pd.read_csv(path)
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            # index_col=False: a row with an extra field must not turn the first column
+            # into the index (pandas' guess when the first data row is the longer one).
+            frame = pd.read_csv(path, index_col=False)
+    except pd.errors.EmptyDataError:
+        raise SeriesError(
+            f"{where} is empty; give a CSV file with a header row and one row per period."
+        ) from None
+    except pd.errors.ParserError as exc:
+        raise _parser_problem(path, where, exc) from None
+    except UnicodeDecodeError:
+        raise _encoding_problem(path, where) from None
     except Exception as exc:
         raise SeriesError(
-            f"Cannot read {plain(path)} as {'Parquet' if suffix in {'.parquet', '.pq'} else 'CSV'}"
-            f": {type(exc).__name__}: {plain(exc, 200)}. Check that it is a table with a header "
-            "row (a .parquet or .pq suffix reads Parquet, any other CSV)."
+            f"Cannot read {where} as CSV: {type(exc).__name__}: {plain(exc, 200)}. Check that "
+            "it is a table with a header row (a .parquet or .pq suffix reads Parquet, any "
+            "other CSV)."
         ) from None
+    # pandas drops the extra fields of rows longer than the header with a warning, and
+    # fills the missing fields of shorter rows with NaN without one.
+    longer = any(issubclass(w.category, pd.errors.ParserWarning) for w in caught)
+    shorter = frame.shape[1] > 1 and bool(frame.iloc[:, -1].isna().any())
+    if longer or shorter:
+        found = _first_ragged_line(path, short_only=not longer)
+        if found is not None:
+            raise _ragged(where, *found)
+    return frame
+
+
+def _records(path: Path) -> Iterator[tuple[int, list[str]]]:
+    """The line each non-blank record of a CSV file starts on, and its fields.
+
+    Read with Python's own CSV reader, which counts the lines of a quoted field that spans
+    several; blank lines (which pandas skips) are skipped. Stops at a record it cannot read.
+    """
+    with path.open(encoding="utf-8-sig", errors="replace", newline="") as handle:
+        reader = csv.reader(handle)
+        start = 1
+        try:
+            for fields in reader:
+                line, start = start, reader.line_num + 1
+                if fields and not (len(fields) == 1 and not fields[0].strip()):
+                    yield line, fields
+        except csv.Error:
+            return
+
+
+def _first_ragged_line(path: Path, *, short_only: bool = False) -> tuple[int, int, int] | None:
+    """(line, fields, fields of the header) of the first row with the wrong number of fields.
+
+    A row is wrong when it has fewer fields than the header, or (unless ``short_only``) more
+    of them with text in the extra ones: empty extra fields (a comma at the end of every
+    line) are dropped by pandas, and so they are not counted.
+    """
+    records = _records(path)
+    header = next(records, None)
+    if header is None:
+        return None
+    expected = len(header[1])
+    for line, fields in records:
+        if len(fields) < expected:
+            return line, len(fields), expected
+        if not short_only and any(f.strip() for f in fields[expected:]):
+            return line, len(fields), expected
+    return None
+
+
+def _ragged(where: str, line: int, count: int, expected: int) -> SeriesError:
+    noun = "field" if count == 1 else "fields"
+    return SeriesError(
+        f"Line {line} of {where} has {count} {noun}, but the header has {expected}. "
+        f"{_ONE_FIELD_PER_COLUMN}"
+    )
+
+
+def _parser_problem(path: Path, where: str, exc: Exception) -> SeriesError:
+    """Our message for a ``pandas.errors.ParserError``."""
+    text = str(exc)
+    fields = re.search(r"Expected (\d+) fields? in line (\d+), saw (\d+)", text)
+    if fields is not None:
+        found = _first_ragged_line(path)
+        if found is None:  # our reader disagrees; pandas' own count is the next best
+            expected, line, count = (int(g) for g in fields.groups())
+            found = (line, count, expected)
+        return _ragged(where, *found)
+    if "EOF inside string" in text:
+        return SeriesError(
+            f'{where} has a quote (") that is never closed{_unclosed_quote(path)}; close it, '
+            "or remove it."
+        )
+    detail = plain(text.replace("Error tokenizing data. C error: ", "").strip(), 200)
+    return SeriesError(
+        f"{where} cannot be read as CSV ({detail}); check that it is a table with a header "
+        "row and one row per line, its fields separated by commas."
+    )
+
+
+def _unclosed_quote(path: Path) -> str:
+    """' (the field starting on line N)' for the quoted field that is never closed."""
+    with path.open(encoding="utf-8-sig", errors="replace", newline="") as handle:
+        reader = csv.reader(handle, strict=True)
+        start = 1
+        try:
+            for _ in reader:
+                start = reader.line_num + 1
+        except csv.Error:
+            return f" (in the row that starts on line {start})"
+    return ""
+
+
+def _encoding_problem(path: Path, where: str) -> SeriesError:
+    """Our message for a file that is not UTF-8, naming the first line that is not."""
+    with path.open("rb") as handle:
+        for number, raw in enumerate(handle, start=1):
+            if number == 1:
+                raw = raw.removeprefix(codecs.BOM_UTF8)
+            try:
+                raw.decode("utf-8")
+            except UnicodeDecodeError as exc:
+                return SeriesError(
+                    f"{where} is not UTF-8 text: line {number} has the byte "
+                    f"0x{raw[exc.start]:02X}, which UTF-8 does not allow there. {_SAVE_AS_UTF8}"
+                )
+    return SeriesError(f"{where} is not UTF-8 text. {_SAVE_AS_UTF8}")
 
 
 def _is_text(values: pd.Series) -> bool:

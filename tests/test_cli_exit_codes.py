@@ -263,3 +263,25 @@ def test_record_names_the_command_line_and_the_input_file(csv: Path, tmp_path: P
     assert invocation["input_file"]["sha256"] in html
     assert "input file SHA-256" in (out / cli.MARKDOWN_NAME).read_text()
     assert json.loads((out / cli.RECORD_NAME).read_text()) == record
+
+
+def test_a_reader_that_leaves_early_does_not_lose_the_audit(csv: Path, tmp_path: Path) -> None:
+    """``forecastaudit audit ... | head -1``: the pipe closes before the report is printed.
+    The files are still written, the exit code is the audit's, and no error is claimed."""
+    env = {**os.environ, "PYTHONPATH": str(ROOT)}
+    out = tmp_path / "out"
+    command = [sys.executable, "-m", "forecastaudit.cli", *_audit(csv, out)]
+    process = subprocess.Popen(
+        command, stdout=subprocess.PIPE, stderr=subprocess.PIPE, env=env, text=True
+    )
+    assert process.stdout is not None and process.stderr is not None
+    process.stdout.close()  # the reader leaves before the first line
+    stderr = process.stderr.read()
+    code = process.wait(timeout=600)
+    assert code in (EXIT_PASS, EXIT_FINDINGS), stderr
+    assert "Broken pipe" not in stderr and "error" not in stderr
+    assert sorted(p.name for p in out.iterdir()) == [
+        cli.RECORD_NAME,
+        cli.HTML_NAME,
+        cli.MARKDOWN_NAME,
+    ]
