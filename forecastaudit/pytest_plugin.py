@@ -15,7 +15,8 @@ for), a drifted one fails with the drift table. Baselines are written atomically
 Options (command line, with ini equivalents):
 
 ``--audit-baselines DIR`` / ``audit_baselines``
-    Folder of baseline records (default ``audit-baselines`` beside the rootdir's ini file).
+    Folder of baseline records (default ``audit-baselines``: beside the ini file when there
+    is one, else in the directory pytest was started in).
 ``--audit-update-baselines`` / ``audit_update_baselines``
     Write (or overwrite) the baselines from this run, deliberately.
 ``--audit-estimators KEYS`` / ``audit_estimators``
@@ -30,6 +31,18 @@ Options (command line, with ini equivalents):
     with ``--audit-update-baselines`` are unsigned until a reviewer signs them.
 ``--audit-workers N`` / ``audit_workers``
     Series audited at once by ``panel_audit`` (default: the machine's cores).
+
+Relative paths (the baseline folder and the trusted keys) are resolved as follows:
+
+- given on the command line (or in ``PYTEST_ADDOPTS``): against the directory pytest was
+  started in (``config.invocation_params.dir``);
+- given in the ini file (or with ``-o NAME=VALUE``), and the default baseline folder:
+  against the ini file's folder (``config.inipath.parent``), or, when there is no ini file,
+  against the directory pytest was started in.
+
+pytest's rootdir plays no part: it can move when an option's value is an existing path
+(an absolute key file elsewhere, say), and the baseline folder must not move with it.
+Absolute paths are used as they are.
 
 Panels have the ``panel_audit`` fixture::
 
@@ -65,7 +78,8 @@ def pytest_addoption(parser: pytest.Parser) -> None:
         dest="audit_baselines",
         default=None,
         metavar="DIR",
-        help="folder of baseline audit records",
+        help="folder of baseline audit records (a relative path is read from the directory "
+        "pytest was started in)",
     )
     group.addoption(
         "--audit-update-baselines",
@@ -109,16 +123,22 @@ def pytest_addoption(parser: pytest.Parser) -> None:
         action="append",
         default=None,
         metavar="FILE",
-        help="a reviewer's public key (PEM); baselines must then be signed by one (repeatable)",
+        help="a reviewer's public key (PEM); baselines must then be signed by one (repeatable; "
+        "a relative path is read from the directory pytest was started in)",
     )
     parser.addini(
         "audit_trusted_keys",
-        "reviewers' public key files (PEM), one per line; baselines must be signed by one",
+        "reviewers' public key files (PEM), one per line, relative to the ini file's folder; "
+        "baselines must be signed by one",
         type="linelist",
         default=[],
     )
     parser.addini("audit_workers", "series audited at once by panel_audit", default="")
-    parser.addini("audit_baselines", "folder of baseline audit records", default="audit-baselines")
+    parser.addini(
+        "audit_baselines",
+        "folder of baseline audit records, relative to the ini file's folder",
+        default="audit-baselines",
+    )
     parser.addini(
         "audit_update_baselines", "write the baselines from this run", type="bool", default=False
     )
@@ -162,9 +182,9 @@ class _Settings:
 
     def __init__(self, config: pytest.Config) -> None:
         opt, ini = config.getoption, config.getini
-        folder = opt("audit_baselines") or ini("audit_baselines")
-        base = Path(config.inipath).parent if config.inipath else Path(config.rootpath)
-        self.baselines = (base / folder).resolve()
+        folder = opt("audit_baselines")
+        base = _path_base(config, from_command_line=bool(folder))
+        self.baselines = (base / str(folder or ini("audit_baselines"))).resolve()
         if self.baselines.exists() and not self.baselines.is_dir():
             raise pytest.UsageError(
                 f"The audit baseline folder {self.baselines} is a file; point "
@@ -187,17 +207,34 @@ class _Settings:
                     f"not {workers[:40]!r}."
                 )
             self.workers = int(workers)
+        from_command_line = bool(opt("audit_trusted_key"))
         key_files = opt("audit_trusted_key") or ini("audit_trusted_keys")
+        keys_base = _path_base(config, from_command_line=from_command_line)
         self.trusted_keys: list[Any] | None = None
         if key_files:
             from forecastaudit.errors import RecordError
             from forecastaudit.record.signing import load_public_key
 
             try:
-                self.trusted_keys = [load_public_key(base / str(f)) for f in key_files]
+                self.trusted_keys = [
+                    load_public_key((keys_base / str(f)).resolve()) for f in key_files
+                ]
             except RecordError as exc:
+                hint = ""
+                if not all(Path(str(f)).is_absolute() for f in key_files):
+                    given = (
+                        "on the command line"
+                        if from_command_line
+                        else f"in the ini file {config.inipath}"
+                        if config.inipath
+                        else "with -o"
+                    )
+                    hint = (
+                        f" A relative key path given {given} is read from {keys_base}; give "
+                        "the path from there, or an absolute one."
+                    )
                 raise pytest.UsageError(
-                    f"--audit-trusted-key (ini audit_trusted_keys): {exc}"
+                    f"--audit-trusted-key (ini audit_trusted_keys): {exc}{hint}"
                 ) from None
         self.configured = bool(
             opt("audit_baselines")
@@ -234,6 +271,29 @@ class _Settings:
 
 
 _SETTINGS = pytest.StashKey[_Settings]()
+
+
+def _path_base(config: pytest.Config, *, from_command_line: bool) -> Path:
+    """The folder a relative path option is resolved against.
+
+    Parameters
+    ----------
+    config : pytest.Config
+        The session's configuration.
+    from_command_line : bool
+        Whether the value came from the command line (or ``PYTEST_ADDOPTS``) rather than
+        from the ini file, ``-o`` or the option's default.
+
+    Returns
+    -------
+    Path
+        The directory pytest was started in for command-line values; otherwise the ini
+        file's folder, or the directory pytest was started in when there is no ini file.
+        Never the rootdir, which moves when an option's value is an existing path.
+    """
+    if not from_command_line and config.inipath is not None:
+        return Path(config.inipath).parent
+    return Path(config.invocation_params.dir)
 
 
 def _settings(config: pytest.Config) -> _Settings:

@@ -18,6 +18,7 @@ import csv
 import re
 import warnings
 from collections.abc import Iterator, Sequence
+from contextlib import closing
 from pathlib import Path
 from typing import Any
 
@@ -208,16 +209,16 @@ def _first_ragged_line(path: Path, *, short_only: bool = False) -> tuple[int, in
     of them with text in the extra ones: empty extra fields (a comma at the end of every
     line) are dropped by pandas, and so they are not counted.
     """
-    records = _records(path)
-    header = next(records, None)
-    if header is None:
-        return None
-    expected = len(header[1])
-    for line, fields in records:
-        if len(fields) < expected:
-            return line, len(fields), expected
-        if not short_only and any(f.strip() for f in fields[expected:]):
-            return line, len(fields), expected
+    with closing(_records(path)) as records:
+        header = next(records, None)
+        if header is None:
+            return None
+        expected = len(header[1])
+        for line, fields in records:
+            if len(fields) < expected:
+                return line, len(fields), expected
+            if not short_only and any(f.strip() for f in fields[expected:]):
+                return line, len(fields), expected
     return None
 
 
@@ -389,7 +390,30 @@ def read_series(
     long-format file of many series (dates that repeat, or an id column first) is refused
     with a pointer to the ``panel`` command. Dates must increase from row to row. Without
     ``column`` the only numeric column is read, leaving out those in ``exclude`` (the
-    regressors read from the same file).
+    regressors read from the same file); a column of numbers with text in it counts as one
+    of them, and is refused naming the first text value and its line.
+
+    Parameters
+    ----------
+    path : str or Path
+        A CSV or Parquet file, read by :func:`read_table`.
+    column : str or None
+        The column of values; None for the only numeric one.
+    date_column : str, optional
+        The column of dates; by default the first column that holds dates.
+    exclude : sequence of str, optional
+        Columns that are not the values (the regressors), when ``column`` is None.
+
+    Returns
+    -------
+    pandas.Series
+        The values, named ``column``, indexed by the dates when there are any.
+
+    Raises
+    ------
+    SeriesError
+        When the file cannot be read (see :func:`read_table`), or its columns or dates
+        cannot be used; the message names the file, the column or line, and the fix.
     """
     from forecastaudit.panel.data import looks_like_panel
 
@@ -423,6 +447,11 @@ def read_series(
             and pd.api.types.is_numeric_dtype(frame[c])
             and not pd.api.types.is_bool_dtype(frame[c])
         ]
+        mixed = _text_among_numbers(
+            frame, [c for c in frame.columns if c != dates and str(c) not in exclude]
+        )
+        if mixed:
+            raise _text_problem(path, where, frame, mixed)
         if len(numeric) != 1:
             raise SeriesError(
                 f"{where} has {len(numeric)} numeric columns besides the dates (columns: "
@@ -450,6 +479,60 @@ def read_series(
         series.index = _with_frequency(index) if index.is_monotonic_increasing else index
     series.name = column
     return series
+
+
+def _text_among_numbers(frame: pd.DataFrame, names: Sequence[Any]) -> dict[Any, pd.Series]:
+    """The text columns of ``names`` that hold mostly numbers: each with its text values.
+
+    "Mostly" is at least half of the values that are not missing (our choice): a column of
+    numbers with a typo in it, not a column of labels with a few numbers among them.
+    """
+    out: dict[Any, pd.Series] = {}
+    for name in names:
+        values = frame[name]
+        if not _is_text(values):
+            continue
+        given = values.dropna()
+        if given.empty:
+            continue
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            numbers = pd.to_numeric(given.astype(str).str.strip(), errors="coerce")
+        readable = numbers.notna()
+        if readable.mean() >= 0.5 and not readable.all():
+            out[name] = given[~readable.to_numpy()]
+    return out
+
+
+def _text_problem(
+    path: Path, where: str, frame: pd.DataFrame, mixed: dict[Any, pd.Series]
+) -> SeriesError:
+    """The message for columns of numbers with text in them, naming the first of each."""
+    lines = _data_lines(path, len(frame))
+    parts = []
+    for name, text in list(mixed.items())[:3]:
+        row = frame.index.get_loc(text.index[0])
+        place = f"line {lines[row]}" if lines is not None else f"data row {row + 1}"
+        more = f" (and {len(text) - 1} more)" if len(text) > 1 else ""
+        column = f" in {echo(name, 40)}" if len(mixed) > 1 else ""
+        parts.append(f"{echo(text.iloc[0], 40)} on {place}{more}{column}")
+    if len(mixed) == 1:
+        head = f"Column {echo(next(iter(mixed)), 40)} of {where} holds numbers but also text"
+    else:
+        head = f"Columns {_listed(mixed)} of {where} hold numbers but also text"
+    values = "the value" if sum(len(text) for text in mixed.values()) == 1 else "those values"
+    return SeriesError(
+        f"{head}: {'; '.join(parts)}. Correct {values} (a missing value is an empty field), "
+        "or choose the column to audit with --column."
+    )
+
+
+def _data_lines(path: Path, rows: int) -> list[int] | None:
+    """The line each data row of a CSV file starts on (None for Parquet, or if unsure)."""
+    if path.suffix.lower() in {".parquet", ".pq"} or path.suffix.lower().endswith(_COMPRESSED):
+        return None
+    lines = [line for line, _ in _records(path)][1:]
+    return lines if len(lines) == rows else None
 
 
 def read_regressors(

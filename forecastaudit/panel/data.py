@@ -93,7 +93,7 @@ def _as_time_index(values: pd.Series, column: str) -> pd.Index:
         return parse_time_column(values, column, "the panel table")
     except SeriesError as exc:
         raise PanelError(
-            f"{exc} Name the right column with time_column (--time-column) if this is not it."
+            f"{exc} Name the right column with time_column (--date-column) if this is not it."
         ) from None
 
 
@@ -137,7 +137,7 @@ def _pick_columns(
         if not candidates:
             raise PanelError(
                 f"No column of dates or periods found; name it with time_column "
-                f"(--time-column). The table's columns: {columns}."
+                f"(--date-column). The table's columns: {columns}."
             )
         time_column = candidates[0]
     if value_column is None:

@@ -71,6 +71,15 @@ class PanelResult:
         return counts["fail"] == 0 and counts[NOT_AUDITED] == 0
 
     @property
+    def verdict(self) -> str:
+        """``"fail"`` when a series fails or was not audited; otherwise ``"pass-with-notes"``
+        when any series passes with notes, else ``"pass"`` (the words of a single audit)."""
+        counts = self.counts
+        if not self.passed:
+            return "fail"
+        return "pass-with-notes" if counts["pass-with-notes"] else "pass"
+
+    @property
     def failing(self) -> list[str]:
         """Ids of the series that fail, most serious first."""
         return list(self.summary.index[self.summary["verdict"] == "fail"])
@@ -118,6 +127,7 @@ class PanelResult:
             {
                 "counts": self.counts,
                 "passed": self.passed,
+                "verdict": self.verdict,
                 "causes": [c.to_dict() | {"sentence": s}
                            for c, s in zip(self.causes, self.cause_sentences(), strict=True)],
                 "summary": frame.to_dict(orient="records"),
@@ -151,8 +161,7 @@ class PanelResult:
     def __str__(self) -> str:
         counts = self.counts
         lines = [
-            f"forecastaudit panel: {len(self.summary)} series -> "
-            + ("PASS" if self.passed else "FAIL"),
+            f"forecastaudit panel: {len(self.summary)} series -> {self.verdict.upper()}",
             "  " + ", ".join(f"{n} {v}" for v, n in counts.items()),
         ]
         sentences = self.cause_sentences()

@@ -214,12 +214,25 @@ def _first_cause(result: Any) -> Any:
     if not top:
         return None
     production = result.production
-    for f in top:
+    # A cause of a disagreement (material first) says more than a symptom of it such as a
+    # convergence code: "stopped short, material" rather than "did not report convergence".
+    def weight(f: Any) -> tuple[int, int]:
+        material = bool(((f.values or {}).get("materiality") or {}).get("material"))
+        return (0 if f.kind in _DISAGREEMENT_CAUSES else 1, 0 if material else 1)
+
+    ranked = sorted(top, key=weight)  # stable: the audit's order within a rank
+    for f in ranked:
         if f.kind not in {"production-estimate", "engine-count"} and (
             production is None or f.estimator == production or production in f.estimators
         ):
             return f
-    return top[0]
+    return ranked[0]
+
+
+#: Findings that explain why an estimate differs from the optimum.
+_DISAGREEMENT_CAUSES = frozenset(
+    {"stopped-short", "objective-differs", "short-of-optimum", "flat-likelihood"}
+)
 
 
 def audit_series(job: SeriesJob) -> dict[str, Any]:

@@ -76,7 +76,11 @@ VERDICT_MEANINGS: dict[str, str] = {
 FLAG_MARKS: dict[str, tuple[str, str]] = {
     "beyond": ("\u2020", "differs from the reference optimum by more than the tolerance"),
     "changed": ("\u2021", "changed from the default"),
-    "low-p": ("\u00a7", "p-value below 0.05: autocorrelation may remain in the residuals"),
+    "low-p": (
+        "\u00a7",
+        "p-value below 0.05: some autocorrelation may remain in the residuals (a finding is "
+        "written only below 0.001, where the model plainly misses structure)",
+    ),
     "material": ("\u00b6", "beyond the materiality threshold of the policy"),
 }
 
@@ -975,6 +979,14 @@ def forecast_table(report: AuditResult) -> Table | None:
         "not widen or narrow it"
         + (f" (engines: {', '.join(map(_plain_text, engines))})." if engines else "."),
     ]
+    if len(engines) < 2:
+        notes.insert(
+            0,
+            "Only one engine forecast"
+            + (f" ({_plain_text(engines[0])})" if engines else "")
+            + ", so there is no spread between implementations to measure: a spread of 0 "
+            "here is not agreement. Run another engine to compare forecasts.",
+        )
     point = report.options.get("point_forecast")
     if point:
         notes.append(f"Point forecasts on the original scale are the {point}.")

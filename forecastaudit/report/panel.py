@@ -213,6 +213,7 @@ def _context(result: PanelResult) -> dict[str, Any]:
     return {
         "title": f"Panel audit of {len(result.summary)} series",
         "passed": result.passed,
+        "verdict": result.verdict,
         "counts": counts,
         "words": VERDICT_WORDS,
         "sentences": result.cause_sentences(),
@@ -262,7 +263,7 @@ def render_panel_markdown(result: PanelResult) -> str:
     """The panel report in Markdown (GitHub-flavoured tables)."""
     c = _context(result)
     lines = [f"# {c['title']}", ""]
-    verdict = "PASS" if c["passed"] else "FAIL"
+    verdict = c["verdict"].upper()
     lines.append(
         f"**{verdict}**: "
         + ", ".join(f"{n} {c['words'][v].lower()}" for v, n in c["counts"].items())

@@ -534,7 +534,10 @@ def forecast_plot(report: AuditResult, history: int | None = None) -> Plot | Non
         + (f", with the {widest:g}% interval at {base_key}" if widest is not None else "")
         + "; the hatched band is the range of point forecasts across independent engines."
     )
-    if spread is not None and "spread_share_of_interval" in spread.columns:
+    single = spread is not None and len(spread.attrs.get("engines", [])) < 2
+    if single:
+        alt += " Only one engine forecast, so there is no spread between implementations."
+    elif spread is not None and "spread_share_of_interval" in spread.columns:
         alt += (
             f" The spread is at most {100 * float(spread['spread_share_of_interval'].max()):.1f}%"
             " of the interval width."
