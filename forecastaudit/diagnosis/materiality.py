@@ -134,22 +134,31 @@ def measure_materiality(
         base = accuracy[reference_key]
         if base and math.isfinite(base):
             out.accuracy_difference = float(accuracy[key] / base - 1.0)
+    # Each check: the value, its threshold, and the words for both, in the same unit.
     checks = (
-        (out.forecast_se, tol.material_forecast_se, "point forecasts {:.2f} SE apart"),
-        (out.forecast_percent, tol.material_forecast_percent, "point forecasts {:.2f}% apart"),
+        (out.forecast_se, tol.material_forecast_se, "point forecasts {:.2f} SE apart", "{:g}"),
+        (
+            out.forecast_percent,
+            tol.material_forecast_percent,
+            "point forecasts {:.2f}% apart",
+            "{:g}%",
+        ),
         (
             abs(out.width_ratio - 1.0) if math.isfinite(out.width_ratio) else math.nan,
             tol.material_width_rtol,
             "interval widths {:.1%} apart",
+            "{:.3g%}",
         ),
         (
             abs(out.accuracy_difference),
             tol.material_accuracy_rtol,
             "holdout MASE {:.1%} apart",
+            "{:.3g%}",
         ),
     )
-    for value, threshold, words in checks:
+    for value, threshold, words, unit in checks:
         if math.isfinite(value) and value > threshold:
-            out.reasons.append(words.format(value) + f" (threshold {threshold:g})")
+            shown = f"{100.0 * threshold:.3g}%" if unit == "{:.3g%}" else unit.format(threshold)
+            out.reasons.append(words.format(value) + f" (threshold {shown})")
     out.material = bool(out.reasons)
     return out
