@@ -193,7 +193,7 @@ def _cmd_audit(args: argparse.Namespace) -> int:
     series = read_series(args.data, args.column, args.date_column, exclude=columns)
     regressors = read_regressors(args.data, columns, args.date_column) if columns else None
     future = read_regressors(args.future, columns) if args.future and columns else None
-    estimators = args.estimators.split(",") if args.estimators else None
+    estimators = _estimator_keys(args.estimators)
     report = audit(
         series,
         spec,
@@ -214,6 +214,20 @@ def _cmd_audit(args: argparse.Namespace) -> int:
     )
     report.invocation = invocation
     return _finish(report, Path(args.out) if args.out else None)
+
+
+def _estimator_keys(text: str | None) -> list[str] | None:
+    """The keys of --estimators (None when the option is not given)."""
+    if text is None:
+        return None
+    keys = [key.strip() for key in text.split(",") if key.strip()]
+    if not keys:
+        raise ForecastAuditError(
+            "--estimators is empty. Leave it out to run every installed estimator, or give "
+            "keys such as statsmodels-sarimax,statsforecast ('forecastaudit estimators' lists "
+            "them)."
+        )
+    return keys
 
 
 def _production(args: argparse.Namespace) -> str:
@@ -278,7 +292,7 @@ def _cmd_panel(args: argparse.Namespace) -> int:
     frame = read_table(args.data)
     estimators: Any = args.estimators
     if estimators not in (None, "independent", "all"):
-        estimators = estimators.split(",")
+        estimators = _estimator_keys(estimators)
     result = audit_panel(
         frame,
         spec,
@@ -329,7 +343,7 @@ def _cmd_compare_models(args: argparse.Namespace) -> int:
     series = read_series(args.data, args.column, args.date_column, exclude=columns)
     regressors = read_regressors(args.data, columns, args.date_column) if columns else None
     future = read_regressors(args.future, columns) if args.future and columns else None
-    estimators = args.estimators.split(",") if args.estimators else None
+    estimators = _estimator_keys(args.estimators)
     result = compare_models(
         series,
         specs,

@@ -109,9 +109,10 @@ def level_label(level: float) -> str:
 
 
 def check_levels(levels: Any) -> tuple[float, ...]:
-    """Interval levels in percent, sorted, each strictly between 0 and 100.
+    """Interval levels in percent, sorted, each above 1 and below 100.
 
-    True/False are refused (``(True,)`` is not a 1% interval), and so are two levels that
+    A level of 1 or less is refused as a probable fraction (0.95 meant as 95%). True/False
+    are refused (``(True,)`` is not a 1% interval), and so are two levels that
     would be written alike (``95`` and ``95.0000001``), since they would overwrite each
     other in the record's keys and the report's columns.
     """
@@ -130,6 +131,12 @@ def check_levels(levels: Any) -> tuple[float, ...]:
         if not math.isfinite(value) or not 0 < value < 100:
             raise SpecError(
                 f"levels must lie strictly between 0 and 100 (percent); got {echo(levels)}."
+            )
+        if value <= 1.0:
+            # 0.95 is a 95% interval written as a fraction far more often than a 0.95% one.
+            raise SpecError(
+                f"levels are in percent, and {value:g} would be a {value:g}% interval; for "
+                f"{100 * value:g}% give {100 * value:g} (levels must exceed 1)."
             )
         values.append(value)
     if not values:

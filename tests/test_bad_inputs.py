@@ -238,6 +238,8 @@ CASES = [
          fix="sequence of numbers"),
     case("levels-empty", audit, monthly, MODEL, only, levels=(), error=SpecError,
          fix="at least one level"),
+    case("levels-fraction", audit, monthly, MODEL, only, levels=(0.8, 0.95), error=SpecError,
+         fix="for 80% give 80"),
     case("origins-without-holdout", audit, monthly, MODEL, only, origins=3, error=SpecError,
          fix="pass holdout=H"),
     case("holdout-too-long", audit, monthly, MODEL, only, holdout=12, origins=3,

@@ -285,3 +285,10 @@ def test_a_reader_that_leaves_early_does_not_lose_the_audit(csv: Path, tmp_path:
         cli.HTML_NAME,
         cli.MARKDOWN_NAME,
     ]
+
+
+def test_an_empty_estimator_list_is_a_usage_error(csv: Path, tmp_path: Path, capsys) -> None:
+    out = tmp_path / "out"
+    args = ["audit", str(csv), "--model", "ARIMA(1,0,0) +mean", "--estimators", " , ", "--quiet"]
+    assert main([*args, "--out", str(out)]) == EXIT_USAGE
+    assert "--estimators is empty" in capsys.readouterr().err and not out.exists()
