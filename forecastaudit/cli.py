@@ -315,10 +315,10 @@ def _cmd_panel(args: argparse.Namespace) -> int:
         progress=not args.quiet,
     )
     print(result)
-    print(
-        f"\nwrote {out} (panel-report.html, panel-report.md, panel-summary.csv, "
-        f"panel-store.jsonl, series/)"
-    )
+    written = ["panel-report.html", "panel-report.md", "panel-summary.csv", "panel-store.jsonl"]
+    if (out / "series").is_dir():
+        written.append("series/ (records and reports of the series that do not pass)")
+    print(f"\nwrote {out} ({', '.join(written)})")
     return EXIT_PASS if result.passed else EXIT_FINDINGS
 
 
@@ -510,14 +510,37 @@ def _cmd_estimators(args: argparse.Namespace) -> int:
     return EXIT_PASS
 
 
+def _exit_codes(passed: str, findings: str | None, no_estimate: bool) -> str:
+    """The exit codes one command can give, in its own words."""
+    lines = ["exit codes:", f"  0  {passed}"]
+    if findings:
+        lines.append(f"  1  {findings}")
+    lines += [
+        "  2  usage or input error; nothing was written",
+        "  3  internal error (a bug); nothing was written; 'forecastaudit --debug ...' shows",
+        "     the traceback",
+    ]
+    if no_estimate:
+        lines.append(
+            "  4  no estimator produced an estimate, so there was nothing to audit; nothing written"
+        )
+    return "\n".join(lines) + "\n"
+
+
 def _add_command(
-    sub: Any, name: str, summary: str, passed: str = "the audit passed"
+    sub: Any,
+    name: str,
+    summary: str,
+    passed: str = "the audit passed (no finding beyond tolerance)",
+    findings: str | None = None,
+    no_estimate: bool = False,
 ) -> argparse.ArgumentParser:
-    """A sub-command whose help ends with the exit codes, exit 0 meaning ``passed``."""
+    """A sub-command whose help ends with the exit codes it can give: 0 meaning ``passed``,
+    1 meaning ``findings`` (left out when the command does not use it), 4 when it audits."""
     return sub.add_parser(
         name,
         help=summary,
-        epilog=_EPILOG.replace("the audit passed", passed),
+        epilog=_exit_codes(passed, findings, no_estimate),
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
 
@@ -590,12 +613,24 @@ def build_parser() -> argparse.ArgumentParser:
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
     sub.required = True
 
-    demo = _add_command(sub, "demo", "audit the built-in demo series and write its record")
+    demo = _add_command(
+        sub,
+        "demo",
+        "audit the built-in demo series and write its record",
+        passed="the demo ran (its verdict, printed, is its result)",
+        no_estimate=True,
+    )
     demo.add_argument("--out", default="demo-output", help="output folder (default: %(default)s)")
     demo.add_argument("--quiet", action="store_true", help="no progress bar")
     demo.set_defaults(func=_cmd_demo)
 
-    run = _add_command(sub, "audit", "audit one column of a CSV or Parquet file")
+    run = _add_command(
+        sub,
+        "audit",
+        "audit one column of a CSV or Parquet file",
+        findings="the audit ran; at least one finding is beyond tolerance",
+        no_estimate=True,
+    )
     _add_data_arguments(run, "column to audit (default: the only numeric column)")
     run.add_argument(
         "--model",
@@ -653,7 +688,8 @@ def build_parser() -> argparse.ArgumentParser:
         sub,
         "panel",
         "audit every series of a long-format file (one row per series and period)",
-        passed="every series passed",
+        passed="every series passed (with or without notes)",
+        findings="the panel ran; at least one series failed or could not be audited",
     )
     panel.add_argument("data", help="CSV or Parquet file, one row per series and period")
     panel.add_argument("--id-column", required=True, help="column that identifies each series")
@@ -688,7 +724,13 @@ def build_parser() -> argparse.ArgumentParser:
         ("changes", "changes between two audit records (e.g. before and after an upgrade)"),
         ("drift", "deprecated name of 'changes' (kept for one release)"),
     ):
-        changes = _add_command(sub, name, summary, passed="nothing changed beyond tolerance")
+        changes = _add_command(
+            sub,
+            name,
+            summary,
+            passed="nothing changed beyond tolerance",
+            findings="the records compare; at least one quantity changed beyond tolerance",
+        )
         changes.add_argument("old", help="the signed-off record (JSON)")
         changes.add_argument("new", help="the new record (JSON)")
         changes.add_argument("--out", help="write the changes as JSON to this file")
@@ -707,6 +749,7 @@ def build_parser() -> argparse.ArgumentParser:
         "compare-models",
         "is the ranking of candidate models the same in every implementation?",
         passed="the ranking is the same everywhere",
+        findings="the ranking of the models differs between implementations",
     )
     _add_data_arguments(choose, "column to use (default: the only numeric column)")
     choose.add_argument(

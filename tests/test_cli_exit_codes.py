@@ -210,17 +210,21 @@ def test_version_and_per_command_exit_code_help(capsys: pytest.CaptureFixture) -
         main(["--version"])
     assert stop.value.code == 0
     assert capsys.readouterr().out.strip() == f"forecastaudit {fa.__version__}"
-    for command, zero in (
-        ("audit", "the audit passed"),
-        ("changes", "nothing changed beyond tolerance"),
-        ("drift", "nothing changed beyond tolerance"),
-        ("verify", "the record is intact and signed by a trusted key"),
+    # Each command lists the codes it can give, in its own words.
+    for command, zero, one, four in (
+        ("audit", "the audit passed", "at least one finding is beyond tolerance", True),
+        ("changes", "nothing changed beyond tolerance", "changed beyond tolerance", False),
+        ("drift", "nothing changed beyond tolerance", "changed beyond tolerance", False),
+        ("panel", "every series passed", "at least one series failed", False),
+        ("verify", "the record is intact and signed by a trusted key", None, False),
+        ("demo", "the demo ran", None, True),
     ):
         with pytest.raises(SystemExit):
             main([command, "--help"])
         text = capsys.readouterr().out
-        assert f"0  {zero}" in text
-        assert "3  internal error" in text and "4  no estimator produced" in text
+        assert f"0  {zero}" in text and "3  internal error" in text, command
+        assert ("1  " in text and one in text) if one else "\n  1  " not in text, command
+        assert ("4  no estimator produced" in text) == four, command
 
 
 def test_subprocess_exit_codes(csv: Path, tmp_path: Path) -> None:
