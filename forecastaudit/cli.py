@@ -504,7 +504,7 @@ def _cmd_estimators(args: argparse.Namespace) -> int:
             else "no regressors"
         )
         print(
-            f"{key:22} {adapter.package} {adapter.version() or '-':10} "
+            f"{key:22} {adapter.package + ' ' + (adapter.version() or '-'):22} "
             f"engine {adapter.engine:24} {regression:24} {state}"
         )
     return EXIT_PASS

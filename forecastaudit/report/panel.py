@@ -131,10 +131,9 @@ def _distribution_plot(result: PanelResult) -> Plot | None:
     axes = figure.subplots(2, 1)
     rng = np.random.default_rng(0)  # vertical jitter of the dots only
     for ax, values, label, floor in (
-        (axes[0], gaps, "log-likelihood gap to the best (log scale; below 1e-6 drawn at 1e-6)",
-         1e-6),
-        (axes[1], differences, "largest point-forecast difference from the optimum, in "
-         "forecast standard errors (log scale)", 1e-4),
+        (axes[0], gaps, "log-likelihood gap to the best (log scale)", 1e-6),
+        (axes[1], differences, "largest forecast difference, in forecast SEs (log scale)",
+         1e-4),
     ):  # fmt: skip
         for row, key in enumerate(keys):
             data = np.maximum(values.get(key, np.array([])), floor)
@@ -152,8 +151,9 @@ def _distribution_plot(result: PanelResult) -> Plot | None:
         "Gaps and forecast differences per estimator",
         "Dot plots, one row per estimator: the log-likelihood gap to the best estimate and "
         "the largest forecast difference from the forecast at the optimum, one dot per series.",
-        "One dot per series; the red bar is the median. Gaps under the reference likelihood; "
-        "forecast differences in the reference forecast standard errors.",
+        "One dot per series; the red bar is the median. Gaps under the reference likelihood "
+        "(below 1e-6 drawn at 1e-6); largest point-forecast differences from the forecast at "
+        "the optimum, in the reference forecast standard errors (below 1e-4 drawn at 1e-4).",
         figure_to_png(figure),
     )
 
