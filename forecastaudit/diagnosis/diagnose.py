@@ -217,8 +217,8 @@ def _definition_findings(e: Estimate, rescore: Rescore) -> list[Finding]:
                 "criteria",
                 f"{e.key}'s own information criteria differ from the canonical ones (k = "
                 f"{e.k} with sigma2, n = {e.n_w} after differencing): {listed}. It counts "
-                f"n = {e.n_used_native}, k = {e.k_counted_native}."
-                + (f" {' '.join(e.notes)}" if e.notes else ""),
+                f"n = {e.n_used_native}, k = {e.k_counted_native}"
+                + (f", except as its notes say: {' '.join(e.notes)}" if e.notes else "."),
                 {n: {"native": a, "canonical": b} for n, (a, b) in differing.items()},
             )
         )
