@@ -862,6 +862,7 @@ def build_parser() -> argparse.ArgumentParser:
         "--folder", help="the environments folder (default: $FORECASTAUDIT_ENVIRONMENTS)"
     )
     listing.set_defaults(func=_cmd_environment_list)
+    parser.commands = sub.choices  # type: ignore[attr-defined]  # usage errors per command
     return parser
 
 
@@ -910,7 +911,10 @@ def main(argv: Sequence[str] | None = None) -> int:
     """Entry point of the ``forecastaudit`` command; returns the exit code."""
     parser = build_parser()
     # argparse exits itself: 0 after --help and --version, 2 (EXIT_USAGE) on bad usage.
-    args = parser.parse_args(argv)
+    args, unknown = parser.parse_known_args(argv)
+    if unknown:  # said by the command's own parser, so its usage line is the one shown
+        commands = getattr(parser, "commands", {})
+        (commands.get(args.command) or parser).error(f"unrecognized arguments: {' '.join(unknown)}")
     args.argv = [str(a) for a in (sys.argv[1:] if argv is None else argv)]
     guarded = _StdoutReaderMayLeave(sys.stdout)
     sys.stdout = guarded  # type: ignore[assignment]

@@ -296,3 +296,13 @@ def test_an_empty_estimator_list_is_a_usage_error(csv: Path, tmp_path: Path, cap
     args = ["audit", str(csv), "--model", "ARIMA(1,0,0) +mean", "--estimators", " , ", "--quiet"]
     assert main([*args, "--out", str(out)]) == EXIT_USAGE
     assert "--estimators is empty" in capsys.readouterr().err and not out.exists()
+
+
+def test_an_unknown_option_is_reported_with_the_commands_usage(capsys) -> None:
+    with pytest.raises(SystemExit) as stop:
+        main(["changes", "old.json", "new.json", "--bogus"])
+    assert stop.value.code == EXIT_USAGE
+    err = capsys.readouterr().err
+    assert (
+        err.startswith("usage: forecastaudit changes") and "unrecognized arguments: --bogus" in err
+    )
