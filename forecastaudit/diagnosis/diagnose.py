@@ -114,10 +114,20 @@ def _status_findings(e: Estimate) -> list[Finding]:
     return []
 
 
+def _optimizer_text(optimizer: Mapping[str, Any]) -> str:
+    """What an optimiser reported, in words: ``method lbfgs, iterations 45, ...``; a real
+    number to 6 significant digits (a message is read, the record keeps every digit)."""
+    return ", ".join(
+        f"{k} {v:.6g}" if isinstance(v, float) else f"{k} {v}"
+        for k, v in optimizer.items()
+        if v is not None
+    )
+
+
 def _event_findings(e: Estimate) -> list[Finding]:
     findings = []
     if e.converged is False:
-        detail = ", ".join(f"{k} {v}" for k, v in e.optimizer.items() if v is not None)
+        detail = _optimizer_text(e.optimizer)
         findings.append(
             Finding(
                 "not-converged",
@@ -517,7 +527,7 @@ def _cause_finding(
     gap = f"{rescore.gap:.4g} log-likelihood units below the reference optimum"
     within = f" (tolerance {tol.loglike_atol:g})" if rescore.gap > tol.loglike_atol else ""
     if cause == "stopped-short":
-        optimiser = ", ".join(f"{k} {v}" for k, v in e.optimizer.items() if v is not None)
+        optimiser = _optimizer_text(e.optimizer)
         message = (
             f"{key}'s estimate is {gap}{within}, and under its own likelihood the reference "
             f"optimum is {own.at_reference - own.at_estimate:.4g} units better than its "
