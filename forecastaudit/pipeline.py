@@ -294,7 +294,8 @@ def audit(
     likelihood_grid : {"always", "on-failure"}
         When to map the reference likelihood over its two coefficients (a model with
         exactly two; 961 evaluations, about a third of a small audit's time) for the
-        report's surface plot: ``"always"`` (the default), or only when the audit fails
+        report's surface plot, and the reference likelihood's profiles towards the estimates
+        that stopped short: ``"always"`` (the default), or only when the audit fails
         (``"on-failure"``, what panels use: they write reports for failing series only).
     regressors : pandas.DataFrame, optional
         The regressor values when the spec names regressors (``ModelSpec(regressors=...)`` or
@@ -552,7 +553,8 @@ def _audit_stages(
         findings.append(
             declaration_finding(check, record, production=production in (record.label, None))
         )
-    profiles = _likelihood_profiles(_reference, y_t, spec, estimates, reference, findings, x)
+    # The estimates the profiles go towards, as diagnosed (before wrappers' findings merge).
+    disagreeing = list(findings)
     engines = {k: all_estimates[k].engine for k in forecasts}
     spread = spread_band(forecasts, engines, REFERENCE_KEY, max(level_tuple)) if forecasts else None
     findings += with_policy_severity(
@@ -587,7 +589,10 @@ def _audit_stages(
     findings = merge_wrapper_findings(findings, estimates)
     findings.sort(key=lambda f: order[f.severity])
     grid = None
+    profiles: dict[str, pd.DataFrame] = {}
+    # Evidence for the report's plots; a panel maps it only for the series it reports on.
     if likelihood_grid == "always" or any(f.severity == "fail" for f in findings):
+        profiles = _likelihood_profiles(_reference, y_t, spec, estimates, reference, disagreeing, x)
         grid = _likelihood_grid(_reference, y_t, spec, estimates, reference, profiles, x)
     for key, e in all_estimates.items():
         if key in rescores and e.ok and e.n_w:
