@@ -114,6 +114,27 @@ def test_equal_likelihood_different_parameters_is_a_flat_direction():
     assert ("stopped-short", "fail") not in _kinds(findings, "b")
 
 
+def test_far_estimate_with_a_large_gap_is_not_flat():
+    """Ten standard errors away in each coefficient with a gap of 20 units: the curvature at
+    the optimum predicts 100, so the quadratic test alone would call it flat; but 20 units
+    is far outside the 95% likelihood-ratio region (3.0 units for two coefficients), so the
+    data do decide, and the own likelihood names the cause: the optimiser stopped short."""
+    far = {"ma_lag1": -0.40 + 10 * 0.09, "sma_lag12": -0.56 + 10 * 0.07, "sigma2": 0.0016}
+    estimates = {
+        "a": _estimate("a", "engine-1", BEST),
+        "b": _estimate("b", "engine-2", far, converged=False, optimizer={"maxiter": 50}),
+    }
+    rescores = {"a": Rescore(244.70, 244.70, 0.0), "b": Rescore(224.70, 224.70, 20.0)}
+    own = {"b": OwnObjective(at_estimate=230.0, at_reference=250.0)}
+    findings = diagnose(SPEC, estimates, rescores, _reference(), SE, Tolerances(), own=own)
+    kinds = {kind for kind, _ in _kinds(findings, "b")}
+    assert "stopped-short" in kinds and "flat-likelihood" not in kinds
+    # Within the region, the same distance with a gap of 2 units stays flat.
+    rescores["b"] = Rescore(242.70, 242.70, 2.0)
+    findings = diagnose(SPEC, estimates, rescores, _reference(), SE, Tolerances(), own=own)
+    assert "flat-likelihood" in {kind for kind, _ in _kinds(findings, "b")}
+
+
 def test_own_objective_separates_stopping_short_from_another_objective():
     short = {**BEST, "sma_lag12": -0.40}
     estimates = {

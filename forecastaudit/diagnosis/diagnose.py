@@ -281,6 +281,31 @@ def _parameter_differences(
     return out
 
 
+def _breaches(gap: float, moved: Mapping[str, Mapping[str, float]], tol: Tolerances) -> str:
+    """Which stated tolerances an estimate is beyond, by name, with value and limit."""
+    parts = []
+    if gap > tol.loglike_atol:
+        parts.append(f"log-likelihood gap {gap:.4g} > loglike_atol {tol.loglike_atol:g}")
+    for name, d in moved.items():
+        if name == "sigma2":
+            parts.append(
+                f"sigma2 {abs(d['difference']) / abs(d['reference']):.2%} apart > sigma2_rtol "
+                f"{tol.sigma2_rtol:g}"
+            )
+        elif math.isfinite(d["in_standard_errors"]):
+            parts.append(
+                f"{name} {abs(d['in_standard_errors']):.2f} reference SEs from the optimum > "
+                f"parameter_se_fraction {tol.parameter_se_fraction:g} (or parameter_atol "
+                f"{tol.parameter_atol:g})"
+            )
+        else:
+            parts.append(
+                f"{name} {abs(d['difference']):.3g} from the optimum > parameter_atol "
+                f"{tol.parameter_atol:g}"
+            )
+    return "; ".join(parts) or "none"
+
+
 def _describe_differences(differences: Mapping[str, Mapping[str, float]]) -> str:
     parts = []
     for name, d in differences.items():
@@ -348,7 +373,11 @@ def classify(
 
     * flat likelihood: the estimate is at least a tenth of a reference standard error away
       in some coefficient, yet its gap is under a quarter of what the curvature at the
-      optimum predicts (half the sum of squared distances in standard errors);
+      optimum predicts (half the sum of squared distances in standard errors) *and* inside
+      the 95% likelihood-ratio region of the optimum (a gap under half the 0.95 quantile of
+      chi-squared with one degree of freedom per coefficient), where the data do not tell
+      the two apart. Far from the optimum the quadratic prediction is no guide, and a gap of
+      many units is never "flat": it is decided by the own likelihood below;
     * otherwise, a gap above the numerical resolution is ``stopped-short`` when the
       estimator's own likelihood is higher at the reference optimum than at its estimate,
       ``objective-differs`` when it is not, and ``short-of-optimum`` when its own
@@ -359,7 +388,7 @@ def classify(
     largest = max((abs(v) for v in distance.values()), default=0.0)
     predicted = 0.5 * sum(v * v for v in distance.values())
     gap = max(rescore.gap, 0.0)
-    if largest >= FLAT_MIN_DISTANCE and gap < 0.25 * predicted:
+    if largest >= FLAT_MIN_DISTANCE and gap < min(0.25 * predicted, _region(len(distance))):
         return "flat-likelihood"
     if gap <= _resolution(rescore.profiled_loglike):
         return None
@@ -368,6 +397,15 @@ def classify(
     if own.at_reference > own.at_estimate + _resolution(own.at_estimate):
         return "stopped-short"
     return "objective-differs"
+
+
+def _region(coefficients: int) -> float:
+    """Half the 0.95 quantile of chi-squared with ``coefficients`` degrees of freedom: the
+    largest log-likelihood gap inside the 95% likelihood-ratio region of the optimum
+    (Wilks' large-sample result; 1.92 for one coefficient, 3.0 for two)."""
+    from scipy.stats import chi2
+
+    return 0.5 * float(chi2.ppf(0.95, max(coefficients, 1)))
 
 
 def _objective_words(e: Estimate) -> tuple[str, str]:
@@ -511,6 +549,20 @@ def diagnose(
     return sorted(findings, key=lambda f: order[f.severity])
 
 
+def _stopping_remedy(optimizer: Mapping[str, Any]) -> str:
+    """What to change in the library's fit when its optimiser stopped short."""
+    limit, used = optimizer.get("maxiter"), optimizer.get("iterations")
+    if isinstance(limit, int) and isinstance(used, int) and used >= limit:
+        return (
+            f"Remedy: it used all {limit} iterations allowed; raise the iteration limit "
+            "(maxiter) of the library's fit."
+        )
+    return (
+        "Remedy: raise the iteration limit or tighten the convergence tolerance of the "
+        "library's fit, or start it from the reference optimum."
+    )
+
+
 def _cause_finding(
     key: str,
     e: Estimate,
@@ -532,7 +584,7 @@ def _cause_finding(
             f"{key}'s estimate is {gap}{within}, and under its own likelihood the reference "
             f"optimum is {own.at_reference - own.at_estimate:.4g} units better than its "
             "estimate: its optimiser stopped short of its own optimum "
-            f"({optimiser or 'no optimiser report'})."
+            f"({optimiser or 'no optimiser report'}). {_stopping_remedy(e.optimizer)}"
         )
     elif cause == "objective-differs":
         how, fix = _objective_words(e)
@@ -677,9 +729,8 @@ def _production_findings(
         target, target_gap = shipped.params, rescores[production].gap
         cause = causes.get(production)
         found = materiality.get(production)
-        beyond = target_gap > tol.loglike_atol or bool(
-            _parameter_differences(spec, shipped, reference.params, standard_errors, tol)
-        )
+        moved = _parameter_differences(spec, shipped, reference.params, standard_errors, tol)
+        beyond = target_gap > tol.loglike_atol or bool(moved)
         if not beyond:
             message = (
                 f"The production estimate ({production}) is at the reference optimum within "
@@ -693,6 +744,7 @@ def _production_findings(
             message = (
                 f"The production estimate ({production}) is not at the reference optimum "
                 f"(gap {target_gap:.4g} log-likelihood units; cause: {cause or 'parameters'})"
+                + f". Beyond tolerance: {_breaches(target_gap, moved, tol)}"
                 + (f"; {found.describe()}" if found is not None else "")
                 + (
                     ". It fails the audit because the difference is material."
@@ -758,9 +810,15 @@ def _production_findings(
             "info" if enough or counted_already else "fail",
             None,
             None,
-            f"{len(engines)} independent engine(s) corroborate {subject}, the reference "
-            f"included (wrappers of one engine count once; required: "
+            f"{len(engines)} independent engine(s) corroborate {subject} (the reference "
+            "counts as one when it agrees; wrappers of one engine count once; required: "
             f"{tol.min_independent_engines})."
+            + (
+                " That is fewer than required, but not a second failure: the production "
+                "estimate's own finding already fails the audit."
+                if not enough and counted_already
+                else ""
+            )
             + (
                 " The production estimate differs from the optimum by an amount that is not "
                 "material, so engines at the optimum corroborate it in decision units."
