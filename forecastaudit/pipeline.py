@@ -628,6 +628,7 @@ def _audit_stages(
         },
         materiality={k: m.to_dict() for k, m in materiality.items()},
         created=_dt.datetime.now(_dt.UTC).replace(microsecond=0).isoformat(),
+        future_regressors=None if x_future is None else np.array(x_future, dtype=float),
     )
 
 

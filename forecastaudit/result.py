@@ -5,6 +5,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Any
 
+import numpy as np
 import pandas as pd
 
 from forecastaudit.diagnosis.findings import Finding, select_findings
@@ -74,6 +75,9 @@ class AuditResult:
     invocation : dict or None
         How the audit was started, when the command line started it: ``command_line`` (the
         arguments) and ``input_file`` (``name``, ``sha256`` and ``bytes`` of the data file).
+    future_regressors : numpy.ndarray or None
+        The regressor values the forecasts assume, ``(horizon, k)`` in ``spec.regressors``
+        order; None without regressors. Kept in the record with their SHA-256.
         Written into the record's provenance.
     """
 
@@ -99,6 +103,7 @@ class AuditResult:
     created: str = ""
     signoff: dict[str, str] | None = None
     invocation: dict[str, Any] | None = None
+    future_regressors: np.ndarray | None = None
 
     # ------------------------------------------------------------------ verdict
     @property

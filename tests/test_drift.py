@@ -174,3 +174,24 @@ def test_changes_command_writes_json_html_markdown_summary_first(
 def test_old_class_name_warns() -> None:
     with pytest.warns(DeprecationWarning, match="RecordChanges"):
         assert fa.RecordDrift is fa.RecordChanges
+
+
+def test_a_year_more_data_compares_only_what_compares() -> None:
+    """The same model re-audited after twelve more months: no period is forecast by both
+    records (horizon 12), so no forecast is compared and the notes say why; holdout
+    accuracies of different data are not judged against the numerics tolerance."""
+    rng = np.random.default_rng(4)
+    index = pd.period_range("2015-01", periods=96, freq="M")
+    y = pd.Series(50 + np.cumsum(rng.normal(size=96)), index=index, name="loans")
+    old = fa.audit(y.iloc[:84], SPEC, estimators=ESTIMATORS, horizon=12, holdout=6).to_dict()
+    new = fa.audit(y, SPEC, estimators=ESTIMATORS, horizon=12, holdout=6).to_dict()
+    changes = fa.compare_records(old, new)
+    assert not changes.same_data
+    quantities = set(changes.table["quantity"])
+    assert not any(q.startswith(("forecast_", "holdout_")) for q in quantities)
+    assert any("no forecast compared" in line and "2021-12" in line for line in changes.changes)
+    assert any(line.startswith("holdout accuracy not compared") for line in changes.changes)
+    # With a 24-month horizon the old record's second year is the new record's first.
+    old = fa.audit(y.iloc[:84], SPEC, estimators=ESTIMATORS, horizon=24).to_dict()
+    changes = fa.compare_records(old, new)
+    assert "forecast_2023-01 (old step 13, new step 1)" in set(changes.table["quantity"])

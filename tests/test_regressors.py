@@ -672,3 +672,25 @@ def test_cli_compare_models_reads_each_candidates_regressors(stationary_case, tm
     out.unlink()
     assert main(["compare-models", *common, "--out", str(out)]) == 2
     assert not out.exists()
+
+
+def test_future_regressor_values_are_in_the_record_and_their_change_is_named(
+    stationary_case,
+) -> None:
+    y, x, future, spec = stationary_case
+    first = fa.audit(y, spec, estimators=["statsforecast"], regressors=x, future_regressors=future)
+    record = first.to_dict()
+    kept = record["forecasts"]["future_regressors"]
+    assert kept["columns"] == ["price", "promo"]
+    assert kept["periods"][0] == "2024-09" and len(kept["periods"]) == 12
+    np.testing.assert_array_equal(np.array(kept["values"]), future.to_numpy())
+    assert record["provenance"]["data"]["future_regressors_sha256"] == kept["sha256"]
+    # Every promotion planned: the forecasts move, and the comparison says why.
+    planned = future.assign(promo=1.0)
+    second = fa.audit(
+        y, spec, estimators=["statsforecast"], regressors=x, future_regressors=planned
+    ).to_dict()
+    assert second["forecasts"]["future_regressors"]["sha256"] != kept["sha256"]
+    changes = fa.compare_records(record, second)
+    assert changes.same_data  # the observed data are the same
+    assert any(line.startswith("future regressor values differ") for line in changes.changes)

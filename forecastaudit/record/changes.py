@@ -388,8 +388,27 @@ def compare_loaded(
             f"forecasts compared by target period: the new series ends {offset} period(s) "
             "after the old one"
         )
+    if not same_sample:
+        notes.append(
+            "holdout accuracy not compared: the records are of different data, so they hold "
+            "out different observations, and their accuracies measure the data as much as the "
+            "numerics"
+        )
+    if transforms[0]:
+        notes.append(
+            f"coefficients and forecasts compared on the {transforms[0]} scale the models are "
+            "fitted on; forecast tolerances are fractions of the reference forecast standard "
+            "error there"
+        )
+    future = lambda r: r["provenance"]["data"].get("future_regressors_sha256")  # noqa: E731
+    if future(a) != future(b):
+        notes.append(
+            "future regressor values differ: the records' forecasts assume different future "
+            "values of the regressors, so their forecast changes are not numerics alone"
+        )
     se = b.get("reference", {}).get("standard_errors", {}) or {}
     rows: list[dict | None] = []
+    compared_forecasts = 0
     keys = [k for k in b["estimates"] if k in a["estimates"]]
     keys += [k for k in a["estimates"] if k not in b["estimates"]]
     for key in keys:
@@ -425,12 +444,21 @@ def compare_loaded(
                     else f"forecast_{_target(b, step)} (old step {old_step}, new step {step})"
                 )
                 rows.append(_row(key, name, fa_["mean"][old_step - 1], y, allowed))
+                compared_forecasts += 1
         ha = ((a.get("holdout") or {}).get("accuracy") or {}).get(key, {})
         hb = ((b.get("holdout") or {}).get("accuracy") or {}).get(key, {})
-        for name in sorted(set(ha) & set(hb)):
+        for name in sorted(set(ha) & set(hb)) if same_sample else ():
             ref = hb[name] if hb[name] is not None else 0.0
             allowed = tol.accuracy_rtol * abs(ref)
             rows.append(_row(key, f"holdout_{name}", ha[name], hb[name], allowed))
+    if offset and not compared_forecasts:
+        horizon = a.get("forecasts", {}).get("horizon")
+        notes.append(
+            f"no forecast compared: the old record forecasts {horizon} period(s) after "
+            f"{a['provenance']['data'].get('last')}, and the new series ends {offset} "
+            "period(s) later, so no period is forecast by both (audit the old data with a "
+            "longer horizon to compare forecasts across a data update)"
+        )
     table = pd.DataFrame([r for r in rows if r is not None], columns=_COLUMNS)
     same_spec = a["spec"]["text"] == b["spec"]["text"]
     if not same_spec and fingerprint(a) != fingerprint(b):

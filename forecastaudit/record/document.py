@@ -58,6 +58,32 @@ def _blas() -> str | None:
         return None
 
 
+def future_regressors_sha256(report: AuditResult) -> str:
+    """SHA-256 of the future regressor values the forecasts assume (columns and values)."""
+    values = np.ascontiguousarray(report.future_regressors, dtype="<f8")
+    digest = hashlib.sha256(",".join(report.spec.regressors).encode("utf-8") + b"\n")
+    digest.update(f"{values.shape}".encode("ascii"))
+    digest.update(values.tobytes())
+    return digest.hexdigest()
+
+
+def _future_regressors(report: AuditResult) -> dict[str, Any] | None:
+    """The future regressor values in the record, by forecast period, or None."""
+    values = getattr(report, "future_regressors", None)
+    if values is None:
+        return None
+    try:
+        periods = report.series.display_labels(report.series.future_index(len(values)))
+    except Exception:  # labels are a courtesy; step numbers always work
+        periods = [str(h) for h in range(1, len(values) + 1)]
+    return {
+        "columns": list(report.spec.regressors),
+        "periods": [str(p) for p in periods],
+        "values": [[float(v) for v in row] for row in np.asarray(values)],
+        "sha256": future_regressors_sha256(report),
+    }
+
+
 def provenance(report: AuditResult) -> dict[str, Any]:
     """Versions, platform and data fingerprint: what a reviewer needs to reproduce a record."""
     from forecastaudit._version import __version__
@@ -88,6 +114,11 @@ def provenance(report: AuditResult) -> dict[str, Any]:
             "last": report.series.labels()[-1],
             "frequency": report.series.frequency,
             "period": report.series.period,
+            **(
+                {"future_regressors_sha256": future_regressors_sha256(report)}
+                if getattr(report, "future_regressors", None) is not None
+                else {}
+            ),
         },
     }
     invocation = getattr(report, "invocation", None)
@@ -142,6 +173,7 @@ def build_record(
                     k: fc.to_dict() for k, fc in report.forecasts_transformed.items()
                 },
                 "spread": _frame_records(report.spread),
+                "future_regressors": _future_regressors(report),
             },
             "residual_tests": _frame_rows(report.residual_tests),
             "likelihood_profiles": {

@@ -959,6 +959,83 @@ def frame_table(
     )
 
 
+def forecast_values_table(report: AuditResult) -> Table | None:
+    """Per forecast period, the point forecast and widest interval of the production
+    estimator (else the first estimator that forecast) and of the reference optimum."""
+    keys = [k for k in report.forecasts if k != "reference"]
+    if not keys:
+        return None
+    production = report.production
+    shown = production if production in report.forecasts else keys[0]
+    steps = len(report.forecasts[shown].median)
+    try:
+        periods = report.series.display_labels(report.series.future_index(steps))
+    except Exception:  # labels are a courtesy; step numbers always work
+        periods = [str(h) for h in range(1, steps + 1)]
+    frame = pd.DataFrame({"period": periods[:steps]}, index=pd.RangeIndex(1, steps + 1))
+    columns: list[tuple[str, str, str]] = [("period", "period", "text")]
+    for key in dict.fromkeys([shown, "reference"]):
+        fc = report.forecasts.get(key)
+        if fc is None:
+            continue
+        label = _plain_text(key)
+        frame[f"{key}:point"] = fc.median
+        columns.append((f"{key}:point", f"{label} point", "column"))
+        if fc.lower:
+            level = max(fc.lower)
+            frame[f"{key}:lower"] = fc.lower[level]
+            frame[f"{key}:upper"] = fc.upper[level]
+            columns.append((f"{key}:lower", f"{label} {level:g}% lower", "column"))
+            columns.append((f"{key}:upper", f"{label} {level:g}% upper", "column"))
+    role = "the production estimator" if shown == production else "the first estimator"
+    notes = [
+        f"The forecasts of {role} ({_plain_text(shown)}) and at the reference optimum, on the "
+        "original scale. Every estimator's forecasts are in the record (forecasts)."
+    ]
+    point = report.options.get("point_forecast")
+    if point:
+        notes.append(f"Point forecasts on the original scale are the {point}.")
+    return frame_table(
+        frame,
+        id="forecast-values",
+        caption="Forecasts: point forecasts and intervals by period",
+        corner="step",
+        columns=columns,
+        notes=notes,
+    )
+
+
+def future_regressors_table(report: AuditResult) -> Table | None:
+    """The regressor values the forecasts assume, by forecast period (None without)."""
+    values = getattr(report, "future_regressors", None)
+    if values is None:
+        return None
+    steps = len(values)
+    try:
+        periods = report.series.display_labels(report.series.future_index(steps))
+    except Exception:  # labels are a courtesy; step numbers always work
+        periods = [str(h) for h in range(1, steps + 1)]
+    frame = pd.DataFrame(np.asarray(values), columns=list(report.spec.regressors))
+    frame.index = pd.RangeIndex(1, steps + 1)
+    frame.insert(0, "period", periods[:steps])
+    columns = [("period", "period", "text")] + [
+        (c, _plain_text(c), "column") for c in report.spec.regressors
+    ]
+    from forecastaudit.record.document import future_regressors_sha256
+
+    return frame_table(
+        frame,
+        id="future-regressors",
+        caption="Regressors: the future values the forecasts assume",
+        corner="step",
+        columns=columns,
+        notes=[
+            "Forecasts of a regression are conditional on these values; other values give "
+            f"other forecasts. SHA-256 of these values: {future_regressors_sha256(report)}."
+        ],
+    )
+
+
 def forecast_table(report: AuditResult) -> Table | None:
     """Per horizon, the spread of point forecasts across independent engines, or None."""
     spread = report.spread

@@ -162,7 +162,11 @@ def _estimators(data: ReportData) -> list[content.Table] | None:
 
 
 def _forecasts(data: ReportData) -> list[content.Table] | None:
-    return _kept(content.forecast_table(data.report))
+    return _kept(
+        content.forecast_values_table(data.report),
+        content.forecast_table(data.report),
+        content.future_regressors_table(data.report),
+    )
 
 
 def _residuals(data: ReportData) -> list[content.Table] | None:
