@@ -265,21 +265,9 @@ def _cmd_environment_create(args: argparse.Namespace) -> int:
 
 
 def _cmd_environment_list(args: argparse.Namespace) -> int:
-    from forecastaudit.adapters.other_environment import SUPPORTED
-    from forecastaudit.environments import environments_folder, list_environments
+    from forecastaudit.environments import describe_environments
 
-    found = list_environments(args.folder)
-    print(f"Environments in {environments_folder(args.folder)}: {len(found) or 'none'}")
-    for info in found:
-        runs = [
-            f"{key} ({package} {info.version_of(package)})"
-            for key, package in SUPPORTED.items()
-            if info.version_of(package)
-        ]
-        print(
-            f"{info.name:24} Python {info.python:8} created {info.created}; "
-            f"runs {', '.join(runs) or 'nothing this release can run'}"
-        )
+    print(describe_environments(args.folder))
     return EXIT_PASS
 
 
@@ -854,12 +842,22 @@ def build_parser() -> argparse.ArgumentParser:
     )
     create.add_argument("--replace", action="store_true", help="replace one of that name")
     create.add_argument(
-        "--folder", help="the environments folder (default: $FORECASTAUDIT_ENVIRONMENTS)"
+        "--folder",
+        help=(
+            "the environments folder (default: $FORECASTAUDIT_ENVIRONMENTS, else "
+            "forecastaudit/environments under $XDG_DATA_HOME, i.e. "
+            "~/.local/share/forecastaudit/environments)"
+        ),
     )
     create.set_defaults(func=_cmd_environment_create)
     listing = env_sub.add_parser("list", help="list the environments and what they can run")
     listing.add_argument(
-        "--folder", help="the environments folder (default: $FORECASTAUDIT_ENVIRONMENTS)"
+        "--folder",
+        help=(
+            "the environments folder (default: $FORECASTAUDIT_ENVIRONMENTS, else "
+            "forecastaudit/environments under $XDG_DATA_HOME, i.e. "
+            "~/.local/share/forecastaudit/environments)"
+        ),
     )
     listing.set_defaults(func=_cmd_environment_list)
     parser.commands = sub.choices  # type: ignore[attr-defined]  # usage errors per command

@@ -12,6 +12,11 @@ The environments folder is ``$FORECASTAUDIT_ENVIRONMENTS`` when set, otherwise
 ``forecastaudit/environments`` under ``$XDG_DATA_HOME`` (``~/.local/share`` by default).
 An environment is built in a temporary folder beside its final place and moved there only
 once pip has finished, so a failed build leaves nothing behind.
+
+An environment whose interpreter is gone or does not start (the Python it was made from was
+moved or removed, say) is *broken*: :func:`list_environments` lists it with the reason
+(:attr:`EnvironmentInfo.problem`), and :func:`get_environment` (which an audit asked to use
+an environment calls before fitting) refuses it, saying how to re-create it.
 """
 
 from __future__ import annotations
@@ -20,11 +25,12 @@ import datetime as _dt
 import json
 import os
 import re
+import shlex
 import shutil
 import subprocess
 import sys
 import tempfile
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any
 
@@ -34,9 +40,12 @@ from forecastaudit.files import write_text_atomic
 __all__ = [
     "EnvironmentInfo",
     "create_environment",
+    "describe_environments",
     "environments_folder",
     "get_environment",
+    "interpreter_problem",
     "list_environments",
+    "recreate_command",
 ]
 
 #: The file an environment's description is kept in, inside its folder.
@@ -53,8 +62,7 @@ def environments_folder(folder: str | os.PathLike[str] | None = None) -> Path:
     configured = os.environ.get("FORECASTAUDIT_ENVIRONMENTS")
     if configured:
         return Path(configured)
-    base = os.environ.get("XDG_DATA_HOME") or str(Path.home() / ".local" / "share")
-    return Path(base) / "forecastaudit" / "environments"
+    return _default_folder()
 
 
 @dataclass(frozen=True)
@@ -74,6 +82,10 @@ class EnvironmentInfo:
         Every distribution pip installed, with its version (names lower case).
     created : str
         When it was created (UTC, ISO 8601).
+    problem : str or None
+        Why it cannot be used (its interpreter is missing or does not start, or its
+        description cannot be read), with the fix; None when it can, or when it was not
+        checked (:func:`list_environments` checks every one).
     """
 
     name: str
@@ -82,6 +94,12 @@ class EnvironmentInfo:
     requested: list[str] = field(default_factory=list)
     installed: dict[str, str] = field(default_factory=dict)
     created: str = ""
+    problem: str | None = None
+
+    @property
+    def broken(self) -> bool:
+        """Whether it was found unusable (see ``problem``)."""
+        return self.problem is not None
 
     @property
     def interpreter(self) -> Path:
@@ -104,6 +122,23 @@ class EnvironmentInfo:
             "installed": dict(sorted(self.installed.items())),
             "created": self.created,
         }
+
+
+def _check_folder(root: Path) -> Path:
+    """``root`` when it is a folder or not there yet; a file there is refused."""
+    if root.exists() and not root.is_dir():
+        raise EnvironmentSetupError(
+            f"{root} is a file, not an environments folder; give the folder the environments "
+            "are in (--folder DIR, or $FORECASTAUDIT_ENVIRONMENTS), or leave it out for the "
+            f"default {_default_folder()}."
+        )
+    return root
+
+
+def _default_folder() -> Path:
+    """The environments folder when neither ``folder`` nor the variable is given."""
+    base = os.environ.get("XDG_DATA_HOME") or str(Path.home() / ".local" / "share")
+    return Path(base) / "forecastaudit" / "environments"
 
 
 def _normal(name: str) -> str:
@@ -191,7 +226,7 @@ def create_environment(
             'statsmodels-0.14 statsmodels==0.14.1 "numpy<2"\'.'
         )
     wanted = [_check_requirement(r) for r in requirements]
-    root = environments_folder(folder)
+    root = _check_folder(environments_folder(folder))
     target = root / name
     if target.exists() and not replace:
         raise EnvironmentSetupError(
@@ -260,9 +295,12 @@ def _read(path: Path) -> EnvironmentInfo:
             "environment create'. Create the environment again."
         ) from None
     if not isinstance(data, dict) or data.get("kind") != KIND:
-        raise EnvironmentSetupError(f"{path / DESCRIPTION} is not a forecastaudit environment.")
+        raise EnvironmentSetupError(
+            f"{path / DESCRIPTION} is not a forecastaudit environment; create the environment "
+            "again with 'forecastaudit environment create'."
+        )
     return EnvironmentInfo(
-        name=str(data["name"]),
+        name=str(data.get("name", path.name)),
         path=path,
         python=str(data.get("python", "")),
         requested=list(data.get("requested", [])),
@@ -271,35 +309,183 @@ def _read(path: Path) -> EnvironmentInfo:
     )
 
 
-def list_environments(folder: str | os.PathLike[str] | None = None) -> list[EnvironmentInfo]:
-    """Every environment in the folder, by name (folders that are not one are skipped)."""
-    root = environments_folder(folder)
+#: What an environment's interpreter is asked, to show that it starts: its version.
+_VERSION_CHECK = "import sys; print('%d.%d.%d' % sys.version_info[:3])"
+
+
+def recreate_command(info: EnvironmentInfo) -> str:
+    """The command that re-creates an environment in its place, with its requirements."""
+    wanted = " ".join(shlex.quote(r) for r in info.requested) or "PACKAGE==VERSION ..."
+    root = info.path.parent
+    elsewhere = os.path.abspath(root) != os.path.abspath(environments_folder())
+    where = f" --folder {shlex.quote(str(root))}" if elsewhere else ""
+    return f"forecastaudit environment create {info.name} {wanted} --replace{where}"
+
+
+def interpreter_problem(
+    info: EnvironmentInfo, *, run: bool = True, timeout: float = 60.0
+) -> str | None:
+    """None when the environment's interpreter is there and starts; otherwise what is wrong
+    with it and how to fix it.
+
+    Parameters
+    ----------
+    info : EnvironmentInfo
+    run : bool
+        Also start the interpreter and ask its version (default), which must be the one the
+        environment was made with (major and minor). Without it, only that the interpreter
+        is an executable file is checked.
+    timeout : float
+        Seconds the interpreter may take to answer.
+    """
+    interpreter = info.interpreter
+    fix = f"re-create it with '{recreate_command(info)}'"
+    if not interpreter.exists():
+        if interpreter.is_symlink():
+            return (
+                f"its interpreter {interpreter} links to {os.readlink(interpreter)}, which does "
+                f"not exist (the Python it was made from was moved or removed); {fix}"
+            )
+        return f"its interpreter {interpreter} is missing; {fix}"
+    if not interpreter.is_file():
+        return f"its interpreter {interpreter} is not a file; {fix}"
+    if not os.access(interpreter, os.X_OK):
+        return f"its interpreter {interpreter} is not executable; {fix}"
+    if not run:
+        return None
+    try:
+        done = subprocess.run(
+            [str(interpreter), "-I", "-c", _VERSION_CHECK],
+            capture_output=True,
+            text=True,
+            timeout=timeout,
+            check=False,
+        )
+    except subprocess.TimeoutExpired:
+        return f"its interpreter {interpreter} did not answer within {timeout:g} s; {fix}"
+    except OSError as exc:
+        return f"its interpreter {interpreter} cannot start ({exc}); {fix}"
+    if done.returncode != 0:
+        tail = (done.stderr or done.stdout).strip()[-500:]
+        said = f": {tail}" if tail else ""
+        return f"its interpreter {interpreter} does not run (exit {done.returncode}{said}); {fix}"
+    version = done.stdout.strip()
+    if not re.fullmatch(r"\d+\.\d+\.\d+", version):
+        return (
+            f"its interpreter {interpreter} ran but did not answer as Python does (it printed "
+            f"{version[:100]!r}); {fix}"
+        )
+    if info.python and version.split(".")[:2] != info.python.split(".")[:2]:
+        return (
+            f"its interpreter {interpreter} now runs Python {version}, but the environment was "
+            f"made with Python {info.python} and its packages were installed for that; {fix}"
+        )
+    return None
+
+
+def list_environments(
+    folder: str | os.PathLike[str] | None = None, *, check: bool = True
+) -> list[EnvironmentInfo]:
+    """Every environment in the folder, by name.
+
+    Each is checked (unless ``check=False``): one whose interpreter is missing or does not
+    start, or whose description cannot be read, is listed with ``problem`` saying why and
+    how to fix it. Folders without an ``environment.json`` (and hidden ones: builds in
+    progress) are skipped. A folder that does not exist yet holds none.
+
+    Raises
+    ------
+    EnvironmentSetupError
+        When the folder is a file.
+    """
+    root = _check_folder(environments_folder(folder))
     if not root.is_dir():
         return []
     found = []
     for path in sorted(root.iterdir()):
         if path.is_dir() and not path.name.startswith(".") and (path / DESCRIPTION).is_file():
             try:
-                found.append(_read(path))
-            except EnvironmentSetupError:
+                info = _read(path)
+            except EnvironmentSetupError as exc:
+                found.append(
+                    EnvironmentInfo(name=path.name, path=path, python="", problem=str(exc))
+                )
                 continue
+            found.append(replace(info, problem=interpreter_problem(info)) if check else info)
     return found
 
 
-def get_environment(name: str, folder: str | os.PathLike[str] | None = None) -> EnvironmentInfo:
-    """The environment of that name.
+def get_environment(
+    name: str, folder: str | os.PathLike[str] | None = None, *, check: bool = True
+) -> EnvironmentInfo:
+    """The environment of that name, checked to be usable.
+
+    Parameters
+    ----------
+    name : str
+    folder : path, optional
+        The environments folder (default: :func:`environments_folder`).
+    check : bool
+        Start its interpreter to check it works (default; see :func:`interpreter_problem`).
 
     Raises
     ------
     EnvironmentSetupError
-        When there is none, listing those there are.
+        When there is none (listing those there are), when it is broken (saying why and how
+        to re-create it), or when the folder is a file.
     """
-    root = environments_folder(folder)
+    root = _check_folder(environments_folder(folder))
     path = root / _check_name(name)
     if not (path / DESCRIPTION).is_file():
-        known = ", ".join(e.name for e in list_environments(folder)) or "none"
+        known = ", ".join(e.name for e in list_environments(folder, check=False)) or "none"
         raise EnvironmentSetupError(
             f"No environment {name!r} in {root} (environments there: {known}). Create it with "
             f"'forecastaudit environment create {name} PACKAGE==VERSION ...'."
         )
-    return _read(path)
+    info = _read(path)
+    if check:
+        problem = interpreter_problem(info)
+        if problem is not None:
+            raise EnvironmentSetupError(
+                f"The environment {name!r} ({path}) is broken and cannot be used: {problem}."
+            )
+    return info
+
+
+def describe_environments(folder: str | os.PathLike[str] | None = None) -> str:
+    """The listing ``forecastaudit environment list`` prints: each environment with its
+    Python and what it can run, or why it is broken.
+
+    Raises
+    ------
+    EnvironmentSetupError
+        When the folder is a file.
+    """
+    from forecastaudit.adapters.other_environment import SUPPORTED
+
+    root = _check_folder(environments_folder(folder))
+    if not root.exists():
+        return (
+            f"Environments in {root}: none (the folder does not exist yet; 'forecastaudit "
+            "environment create NAME PACKAGE==VERSION ...' makes it)"
+        )
+    found = list_environments(folder)
+    broken = sum(info.broken for info in found)
+    lines = [
+        f"Environments in {root}: {len(found) or 'none'}"
+        + (f" ({broken} broken)" if broken else "")
+    ]
+    for info in found:
+        if info.problem is not None:
+            lines.append(f"{info.name:24} BROKEN: {info.problem}")
+            continue
+        runs = [
+            f"{key} ({package} {info.version_of(package)})"
+            for key, package in SUPPORTED.items()
+            if info.version_of(package)
+        ]
+        lines.append(
+            f"{info.name:24} Python {info.python:8} created {info.created}; "
+            f"runs {', '.join(runs) or 'nothing this release can run'}"
+        )
+    return "\n".join(lines)

@@ -6,6 +6,7 @@ compared across implementations.
 
 from __future__ import annotations
 
+import datetime as _dt
 import math
 import time
 from collections.abc import Iterable, Mapping, Sequence
@@ -23,6 +24,12 @@ from forecastaudit.validation import echo, whole_number
 
 
 # ====================================================================== model choice
+def _json_ready(value: Any) -> Any:
+    from forecastaudit.jsonutil import to_plain
+
+    return to_plain(value)
+
+
 @dataclass
 class ModelChoiceResult:
     """The result of :func:`compare_models`.
@@ -49,6 +56,11 @@ class ModelChoiceResult:
     findings : list of Finding
     reports : dict of str to AuditResult
         The audit of each model (memory only, not in :meth:`to_dict`).
+    created : str
+        UTC time the comparison finished (ISO 8601).
+
+    ``scores`` also has, per (model, estimator), ``gap``: the estimate's log-likelihood
+    below that model's reference optimum, and ``audit_verdict``: that model's audit verdict.
     """
 
     specs: list[ModelSpec]
@@ -62,10 +74,18 @@ class ModelChoiceResult:
     findings: list[Finding]
     seconds: float = 0.0
     reports: dict[str, Any] = field(default_factory=dict, repr=False)
+    created: str = ""
 
     def to_dict(self) -> dict[str, Any]:
-        """JSON-ready form (numpy values to Python, NaN to None)."""
+        """JSON-ready form (numpy values to Python, NaN to None), with what a reviewer needs
+        to tie it to its data and software: the time, versions and the data fingerprint."""
+        from forecastaudit.record.document import provenance
+
+        first = next(iter(self.reports.values()), None)
         return {
+            "record": "forecastaudit-model-choice",
+            "created": self.created,
+            **({"provenance": _json_ready(provenance(first))} if first is not None else {}),
             "models": [s.to_dict() for s in self.specs],
             "holdout": self.holdout,
             "origins": self.origins,
@@ -222,8 +242,10 @@ def compare_models(
         label = str(report.spec)
         reports[label] = report
         accuracy = report.holdout.accuracy if report.holdout is not None else pd.DataFrame()
+        gaps = report.likelihoods["gap_to_best"] if "gap_to_best" in report.likelihoods else {}
         for key, estimate in report.estimates.items():
             has = key in accuracy.index
+            gap = float(gaps[key]) if key in gaps and estimate.ok else math.nan
             rows.append(
                 {
                     "model": label,
@@ -237,6 +259,8 @@ def compare_models(
                     "aicc": float(estimate.criteria.get("aicc", math.nan))
                     if estimate.ok
                     else math.nan,
+                    "gap": gap,
+                    "audit_verdict": report.verdict,
                 }
             )
     scores = pd.DataFrame(rows)
@@ -250,6 +274,12 @@ def compare_models(
     preferred = {key: order[0] for key, order in orderings.items()}
     stable = len(set(orderings.values())) <= 1
     findings: list[Finding] = []
+    # A ranking is only as good as the fits behind it: an implementation whose estimate of a
+    # candidate is short of that candidate's optimum ranks a worse fit, not the model.
+    short = scores[(scores["estimator"] != "reference") & (scores["gap"] > tol.loglike_atol)]
+    short_words = "; ".join(
+        f"{row.estimator} on {row.model} ({row.gap:.4g} units)" for row in short.itertuples()
+    )
     if not stable:
         groups: dict[tuple[str, ...], list[str]] = {}
         for key, order in orderings.items():
@@ -279,6 +309,13 @@ def compare_models(
                     if beyond
                     else ". Every gap is within the accuracy tolerance "
                     f"({100 * tol.accuracy_rtol:g}%)."
+                )
+                + (
+                    " Part of it may be the fits rather than the models: these estimates are "
+                    f"below their model's reference optimum: {short_words}. See each model's "
+                    "audit for the cause."
+                    if short_words
+                    else ""
                 ),
                 {
                     "orderings": {k: list(v) for k, v in orderings.items()},
@@ -297,6 +334,25 @@ def compare_models(
                 f"Every implementation ({', '.join(orderings)}) ranks the models the same by "
                 f"holdout MASE: {' < '.join(first)}.",
                 {"ordering": list(first)},
+            )
+        )
+    if short_words:
+        findings.append(
+            Finding(
+                "candidate-off-optimum",
+                "warn",
+                None,
+                "loglike",
+                "Some implementations' estimates of a candidate are below that candidate's "
+                f"reference optimum by more than {tol.loglike_atol:g} log-likelihood units: "
+                f"{short_words}. Their scores rank those fits, not the models; see each "
+                "model's audit (reports) for the cause.",
+                {
+                    "estimates": [
+                        {"model": row.model, "estimator": row.estimator, "gap": row.gap}
+                        for row in short.itertuples()
+                    ]
+                },
             )
         )
     # Reference AICc ranks, only among models that share their differencing and their
@@ -339,4 +395,5 @@ def compare_models(
         findings=findings,
         seconds=time.perf_counter() - started,
         reports=reports,
+        created=_dt.datetime.now(_dt.UTC).replace(microsecond=0).isoformat(),
     )

@@ -456,9 +456,19 @@ def panel_audit(request: pytest.FixtureRequest) -> Callable[..., Any]:
             )
         drift = compare_panel_to_baseline(path, result)
         if not drift.passed:
+            # Each series says whether its data changed, how many quantities moved beyond
+            # tolerance and the largest moves (PanelDrift's text form).
+            changed = drift.ids_with_changed_data()
+            intended = (
+                f"If the new data of {', '.join(changed[:5])}"
+                + (f" and {len(changed) - 5} more" if len(changed) > 5 else "")
+                + " and the drift are intended and reviewed"
+                if changed
+                else "If the change is intended and reviewed"
+            )
             pytest.fail(
-                f"The panel drifted from its baseline {path}:\n{drift}\nIf the change is "
-                "intended and reviewed, regenerate with: pytest --audit-update-baselines",
+                f"The panel drifted from its baseline {path}:\n{drift}\n{intended}, "
+                "regenerate with: pytest --audit-update-baselines",
                 pytrace=False,
             )
         return result

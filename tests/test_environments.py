@@ -30,6 +30,7 @@ from forecastaudit.adapters import environment_worker
 from forecastaudit.adapters.other_environment import WORKER, environment_adapter
 from forecastaudit.environments import (
     create_environment,
+    describe_environments,
     get_environment,
     list_environments,
 )
@@ -225,6 +226,149 @@ def test_cli_environment_list_and_option(mirror_folder: Path, capsys, monkeypatc
 
     assert _parse_environments(["mirror"]) == {"mirror": None}
     assert _parse_environments(["a=statsmodels-sarimax"]) == {"a": ["statsmodels-sarimax"]}
+
+
+# ---------------------------------------------------------------------- broken ones
+def _break(env: Path, how: str) -> Path:
+    """Break a mirror's interpreter in one way. The link to this Python is removed first,
+    so nothing is ever written through it."""
+    python = env / "bin" / "python"
+    python.unlink()
+    if how == "dangling":
+        python.symlink_to(env.parent / "moved-away" / "python3")
+    elif how == "exits":
+        python.write_text("#!/bin/sh\necho 'cannot find its libraries' >&2\nexit 3\n")
+        python.chmod(0o755)
+    elif how == "not-executable":
+        python.write_text("not a program\n")
+        python.chmod(0o644)
+    return python
+
+
+def test_a_file_is_not_an_environments_folder(tmp_path: Path, capsys) -> None:
+    from forecastaudit.cli import EXIT_USAGE, main
+
+    script = tmp_path / "make_data.py"
+    script.write_text("print('data')\n")
+    message = f"{script} is a file, not an environments folder; give the folder"
+    for call in (
+        lambda: list_environments(script),
+        lambda: describe_environments(script),
+        lambda: get_environment("mirror", script),
+        lambda: create_environment("mirror", ["statsmodels==0.14.1"], folder=script),
+    ):
+        with pytest.raises(EnvironmentSetupError, match=message):
+            call()
+    assert main(["environment", "list", "--folder", str(script)]) == EXIT_USAGE
+    captured = capsys.readouterr()
+    assert captured.out == ""
+    assert f"forecastaudit: error: {message}" in captured.err
+    # A folder not made yet holds none, and the listing says it is not there yet.
+    missing = tmp_path / "not-yet"
+    assert list_environments(missing) == []
+    assert describe_environments(missing) == (
+        f"Environments in {missing}: none (the folder does not exist yet; 'forecastaudit "
+        "environment create NAME PACKAGE==VERSION ...' makes it)"
+    )
+    assert not missing.exists()
+
+
+def test_broken_environments_are_listed_with_the_reason(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    monkeypatch.delenv("FORECASTAUDIT_ENVIRONMENTS", raising=False)
+    monkeypatch.setenv("XDG_DATA_HOME", str(tmp_path / "xdg"))  # not this folder
+    make_mirror(tmp_path, "good")
+    python = {how: _break(make_mirror(tmp_path, how), how) for how in ("dangling", "exits")}
+    python["missing"] = _break(make_mirror(tmp_path, "missing"), "missing")
+    python["not-executable"] = _break(make_mirror(tmp_path, "not-executable"), "not-executable")
+    older = make_mirror(tmp_path, "older")
+    description = json.loads((older / "environment.json").read_text())
+    (older / "environment.json").write_text(json.dumps({**description, "python": "2.7.18"}))
+    (tmp_path / "unreadable").mkdir()
+    (tmp_path / "unreadable" / "environment.json").write_text("{not json")
+    found = {info.name: info for info in list_environments(tmp_path)}
+    assert sorted(found) == [
+        "dangling",
+        "exits",
+        "good",
+        "missing",
+        "not-executable",
+        "older",
+        "unreadable",
+    ]
+    assert found["good"].problem is None and not found["good"].broken
+    fix = (
+        "re-create it with 'forecastaudit environment create {} statsmodels --replace "
+        f"--folder {tmp_path}'"
+    )
+    here = ".".join(map(str, sys.version_info[:3]))
+    assert found["missing"].problem == (
+        f"its interpreter {python['missing']} is missing; {fix.format('missing')}"
+    )
+    assert found["dangling"].problem == (
+        f"its interpreter {python['dangling']} links to {tmp_path / 'moved-away' / 'python3'}, "
+        "which does not exist (the Python it was made from was moved or removed); "
+        + fix.format("dangling")
+    )
+    assert found["not-executable"].problem == (
+        f"its interpreter {python['not-executable']} is not executable; "
+        + fix.format("not-executable")
+    )
+    assert found["exits"].problem == (
+        f"its interpreter {python['exits']} does not run (exit 3: cannot find its "
+        f"libraries); {fix.format('exits')}"
+    )
+    assert found["older"].problem == (
+        f"its interpreter {older / 'bin' / 'python'} now runs Python {here}, but the "
+        "environment was made with Python 2.7.18 and its packages were installed for that; "
+        + fix.format("older")
+    )
+    assert "has no readable environment.json" in found["unreadable"].problem
+    lines = describe_environments(tmp_path).splitlines()
+    assert lines[0] == f"Environments in {tmp_path}: 7 (6 broken)"
+    assert lines[1] == f"{'dangling':24} BROKEN: {found['dangling'].problem}"
+    assert lines[3].startswith(f"{'good':24} Python {here:8} created 2026-01-01T00:00:00+00:00; ")
+    assert f"runs statsmodels-sarimax (statsmodels {metadata.version('statsmodels')})" in lines[3]
+    assert lines[4] == f"{'missing':24} BROKEN: {found['missing'].problem}"
+    # Naming a broken one refuses it, saying why and how to re-create it.
+    with pytest.raises(EnvironmentSetupError) as raised:
+        get_environment("exits", tmp_path)
+    assert str(raised.value) == (
+        f"The environment 'exits' ({tmp_path / 'exits'}) is broken and cannot be used: "
+        f"{found['exits'].problem}."
+    )
+    # Unchecked, its description is still read (what the adapter reads its versions from).
+    assert get_environment("exits", tmp_path, check=False).version_of("statsmodels")
+
+
+def test_an_audit_asked_to_use_a_broken_environment_stops_before_fitting(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    from forecastaudit.adapters.protocol import EstimatorAdapter
+
+    python = _break(make_mirror(tmp_path, "ghost"), "missing")
+    monkeypatch.setenv("FORECASTAUDIT_ENVIRONMENTS", str(tmp_path))
+
+    def no_fit(*args, **kwargs):
+        raise AssertionError("nothing may be fitted with a broken environment named")
+
+    monkeypatch.setattr(EstimatorAdapter, "fit", no_fit)
+    expected = (
+        f"The environment 'ghost' ({tmp_path / 'ghost'}) is broken and cannot be used: its "
+        f"interpreter {python} is missing; re-create it with 'forecastaudit environment create "
+        "ghost statsmodels --replace'."
+    )
+    for environments in ({"ghost": LOCAL}, ["ghost"]):
+        with pytest.raises(EnvironmentSetupError) as raised:
+            fa.audit(fa.load_demo(), fa.DEMO_SPEC, estimators=[LOCAL], environments=environments)
+        assert str(raised.value) == expected
+    # The adapter itself (made without the audit) says it is unavailable, and why.
+    adapter = environment_adapter("ghost", LOCAL, str(tmp_path))()
+    assert adapter.availability() == (
+        f"the environment ghost is broken: its interpreter {python} is missing; re-create it "
+        "with 'forecastaudit environment create ghost statsmodels --replace'"
+    )
 
 
 # ---------------------------------------------------------------------- the slow test

@@ -53,7 +53,9 @@ def test_same_panel_has_no_drift_and_baseline_is_small(first, tmp_path: Path) ->
     assert sorted(document["series"]) == ["east", "north", "south"]
     kept = len(json.dumps(document["series"]["north"]))
     full = len(json.dumps(first.record("north")))
-    assert kept < full / 4
+    # A passing series' record in a panel has no profiles or grid (they are mapped for
+    # failing series only); the baseline keeps about a quarter of what is left.
+    assert kept < full / 3
     drift = compare_panel_to_baseline(path, _run(_panel()))
     assert drift.verdict == "no drift"
     assert drift.passed
@@ -71,6 +73,45 @@ def test_drift_is_reported_for_the_moved_series_only(first) -> None:
     # The level moved by 2.0: the largest move is reported in words with its tolerance.
     assert "tolerance" in drift.table.loc["east", "largest"]
     assert "east: drift beyond tolerance" in str(drift)
+
+
+def test_drift_text_says_the_data_changed_and_how_many_quantities_moved(first) -> None:
+    """One series' last 6 months raised by 25%: its line says its data changed, how many
+    quantities moved beyond tolerance, and the largest three of them, largest first."""
+    table = _panel()
+    raised = (table["depot"] == "east") & (table["month"] >= "2024-07")
+    table.loc[raised, "units"] *= 1.25
+    drift = compare_panel_to_baseline(panel_baseline(first), _run(table))
+    assert drift.ids("drift beyond tolerance") == ["east"]
+    assert drift.ids_with_changed_data() == ["east"]
+    beyond = drift.drifts["east"].beyond
+    count = int(drift.table.loc["east", "beyond"])
+    assert count == len(beyond) > 3
+    # The largest moves against their tolerance, computed from the comparison itself.
+    ratio = (beyond["change"].abs() / beyond["tolerance"]).sort_values(
+        ascending=False, kind="stable"
+    )
+    top = beyond.loc[ratio.index[:3]]
+    expected = [
+        f"    {r.estimator} {r.quantity} {r.change:+.4g} (tolerance {r.tolerance:.3g})"
+        for r in top.itertuples()
+    ]
+    lines = str(drift).splitlines()
+    assert (
+        "The data changed in 1 of 3 series (fingerprints differ from the baseline's)" in (lines[2])
+    )
+    at = lines.index(
+        f"  east: drift beyond tolerance: data changed (fingerprints differ); {count} "
+        "quantities beyond tolerance, the largest:"
+    )
+    assert lines[at + 1 : at + 4] == expected
+    assert lines[at + 4] == f"    ... and {count - 3} more"
+    # The table's "largest" is the first of them.
+    assert expected[0].strip() == drift.table.loc["east", "largest"]
+    # A forecast one step ahead moved up with the raised data, by more than its tolerance.
+    first_move = top.iloc[0]
+    assert first_move["quantity"] == "forecast_step1"
+    assert first_move["change"] > 0 and first_move["new"] > first_move["old"]
 
 
 def test_added_and_removed_series_fail(first) -> None:

@@ -157,7 +157,18 @@ def test_panel_baseline_one_file_and_drift_by_series(pytester: pytest.Pytester) 
     pytester.makepyfile(test_panel_drift_check=PANEL_TEST_FILE.replace("SHIFT", "1.5"))
     result = pytester.runpytest()
     result.assert_outcomes(failed=1)
-    result.stdout.fnmatch_lines(["*panel drifted from its baseline*", "*east depot: drift beyond*"])
+    result.stdout.fnmatch_lines(
+        [
+            "*panel drifted from its baseline*",
+            "*The data changed in 1 of 3 series (fingerprints differ from the baseline's)*",
+            "*east depot: drift beyond tolerance: data changed (fingerprints differ); "
+            "* quantities beyond tolerance, the largest:",
+            "    reference mu +1.5 (tolerance 0.021)",
+            "*... and * more",
+            "*If the new data of east depot and the drift are intended and reviewed, "
+            "regenerate with: pytest --audit-update-baselines*",
+        ]
+    )
     assert "north depot: drift" not in result.stdout.str()
 
 

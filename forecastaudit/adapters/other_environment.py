@@ -166,7 +166,9 @@ class EnvironmentAdapter(EstimatorAdapter):
     def _environment(self) -> Any:
         from forecastaudit.environments import get_environment
 
-        return get_environment(self.environment_name, self.folder)
+        # Its description only: the interpreter is checked by availability() before each
+        # fit (and started by an audit that names the environment, before it fits).
+        return get_environment(self.environment_name, self.folder, check=False)
 
     def version(self) -> str | None:
         """The library's version in the environment (None when it is not there)."""
@@ -176,16 +178,19 @@ class EnvironmentAdapter(EstimatorAdapter):
             return None
 
     def availability(self) -> str | None:
-        """None when the environment exists and holds the library; otherwise why not."""
+        """None when the environment exists, its interpreter is an executable file and it
+        holds the library; otherwise why not, and how to fix it."""
+        from forecastaudit.environments import interpreter_problem
+
         try:
             environment = self._environment()
         except EnvironmentSetupError as exc:
             return str(exc)
-        if not environment.interpreter.exists():
-            return (
-                f"the environment {self.environment_name} has no interpreter at "
-                f"{environment.interpreter}"
-            )
+        # Not started here (this is asked before every fit); a worker already running is
+        # proof enough, and one that cannot start says so when it is started.
+        problem = None if self._session is not None else interpreter_problem(environment, run=False)
+        if problem is not None:
+            return f"the environment {self.environment_name} is broken: {problem}"
         if environment.version_of(self.package) is None:
             return f"{self.package} is not installed in the environment {self.environment_name}"
         return None

@@ -129,6 +129,10 @@ KINDS: dict[str, str] = {
         "model depends on which one is used."
     ),
     "ranking-stable": "Every implementation ranks the candidate models the same way.",
+    "candidate-off-optimum": (
+        "An implementation's estimate of a candidate model is below that model's reference "
+        "optimum: its scores in the comparison are of that fit, not of the model."
+    ),
     "declared-conventions": (
         "Whether the conventions declared for an imported estimate (MA sign, constant, "
         "sigma2, log-likelihood scale) make its reported log-likelihood equal the reference "

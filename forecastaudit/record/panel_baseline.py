@@ -24,7 +24,7 @@ import json
 import os
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
+from typing import Any, ClassVar
 
 import pandas as pd
 
@@ -203,6 +203,11 @@ class PanelDrift:
         """The series in one drift state."""
         return [str(i) for i in self.table.index[self.table["state"] == state]]
 
+    def ids_with_changed_data(self) -> list[str]:
+        """The series whose data changed since the baseline (fingerprints differ), in the
+        table's order (most serious first)."""
+        return [str(i) for i in self.table.index[self.table["data"] == "changed"]]
+
     @property
     def passed(self) -> bool:
         """True when no series moved beyond tolerance and the panel has the same series."""
@@ -225,14 +230,47 @@ class PanelDrift:
             ", ".join(f"{int(counts[s])} {s}" for s in STATES if s in counts)
             + f" (of {len(self.table)} series)"
         )
+        changed = int((self.table["data"] == "changed").sum())
+        if changed:
+            lines.append(
+                f"The data changed in {changed} of {len(self.table)} series (fingerprints "
+                "differ from the baseline's): their fits and forecasts move with the new data."
+            )
         lines += [f"- {c}" for c in self.changes]
         shown = self.table[~self.table["state"].isin(["no drift", "drift within tolerance"])]
         for series_id, row in shown.head(20).iterrows():
-            detail = f": {row['largest']}" if row["largest"] else ""
-            lines.append(f"  {series_id}: {row['state']}{detail}")
+            lines += self._series_lines(str(series_id), row)
         if len(shown) > 20:
             lines.append(f"  ... and {len(shown) - 20} more series")
         return "\n".join(lines)
+
+    #: Quantities beyond tolerance shown per series in the text form, the largest first.
+    SHOWN_PER_SERIES: ClassVar[int] = 3
+
+    def _series_lines(self, series_id: str, row: pd.Series) -> list[str]:
+        """One series in the text form: its state, whether its data changed, how many
+        quantities moved beyond tolerance, and the largest few of them."""
+        drift = self.drifts.get(series_id)
+        if drift is None or drift.beyond.empty:
+            detail = f": {row['largest']}" if row["largest"] else ""
+            return [f"  {series_id}: {row['state']}{detail}"]
+        beyond = len(drift.beyond)
+        data = (
+            "data changed (fingerprints differ)"
+            if row["data"] == "changed"
+            else "same data (equal fingerprints)"
+        )
+        moves = _moves(drift)
+        shown = moves[: self.SHOWN_PER_SERIES]
+        lines = [
+            f"  {series_id}: {row['state']}: {data}; {beyond} "
+            f"{'quantity' if beyond == 1 else 'quantities'} beyond tolerance"
+            + (", the largest:" if beyond > 1 else ":")
+        ]
+        lines += [f"    {move}" for move in shown]
+        if beyond > len(shown):
+            lines.append(f"    ... and {beyond - len(shown)} more")
+        return lines
 
     def to_dict(self) -> dict[str, Any]:
         """Plain-data form (JSON-ready)."""
@@ -243,20 +281,31 @@ class PanelDrift:
         }
 
 
-def _largest(drift: RecordChanges) -> str:
+def _moves(drift: RecordChanges) -> list[str]:
+    """The quantities beyond tolerance in words, the largest move (against its tolerance)
+    first; a quantity that appeared or vanished counts as largest."""
     beyond = drift.beyond
     if beyond.empty:
-        return ""
+        return []
     ratio = (beyond["change"].abs() / beyond["tolerance"].where(beyond["tolerance"] > 0)).fillna(
         float("inf")
     )
-    row = beyond.loc[ratio.idxmax()]
-    if pd.isna(row["change"]):
-        return f"{row['estimator']} {row['quantity']}: {row['old']} -> {row['new']}"
-    return (
-        f"{row['estimator']} {row['quantity']} {row['change']:+.4g} "
-        f"(tolerance {row['tolerance']:.3g})"
-    )
+    out = []
+    for index in ratio.sort_values(ascending=False, kind="stable").index:
+        row = beyond.loc[index]
+        if pd.isna(row["change"]):
+            out.append(f"{row['estimator']} {row['quantity']}: {row['old']} -> {row['new']}")
+        else:
+            out.append(
+                f"{row['estimator']} {row['quantity']} {row['change']:+.4g} "
+                f"(tolerance {row['tolerance']:.3g})"
+            )
+    return out
+
+
+def _largest(drift: RecordChanges) -> str:
+    moves = _moves(drift)
+    return moves[0] if moves else ""
 
 
 def _setting_changes(old: dict[str, Any], new: dict[str, Any]) -> list[str]:
