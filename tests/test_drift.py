@@ -195,3 +195,11 @@ def test_a_year_more_data_compares_only_what_compares() -> None:
     old = fa.audit(y.iloc[:84], SPEC, estimators=ESTIMATORS, horizon=24).to_dict()
     changes = fa.compare_records(old, new)
     assert "forecast_2023-01 (old step 13, new step 1)" in set(changes.table["quantity"])
+
+
+def test_changes_write_their_reports_like_the_other_results(record: dict, tmp_path: Path) -> None:
+    changes = fa.compare_records(record, record)
+    html = changes.to_html(tmp_path / "changes.html")
+    assert (tmp_path / "changes.html").read_text(encoding="utf-8") == html
+    markdown = changes.to_markdown(tmp_path / "changes.md")
+    assert (tmp_path / "changes.md").read_text(encoding="utf-8") == markdown

@@ -243,6 +243,12 @@ def test_cli_new_key_sign_off_sign_verify(
     assert main(["verify", str(record), "--trusted-key", str(public)]) == EXIT_PASS
     out = capsys.readouterr().out
     assert "signature valid" in out and "sign-off rejected by R. Okafor on 2026-12-03" in out
+    # The comparison with the signed-off record names its sign-off.
+    changes = fa.compare_records(record, record, trusted_keys=[public])
+    assert (
+        "The old record was signed off: rejected by R. Okafor on 2026-12-03 under MRM-7 4.2."
+        in str(changes)
+    )
     # Signing changes the seal but not the digest the sheet names, which verify prints.
     assert load_record(record)["content_sha256"] not in sheet_md
     assert f"signed content SHA-256 {digest}" in out

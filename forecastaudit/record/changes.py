@@ -65,6 +65,7 @@ class RecordChanges:
     changes: list[str] = field(default_factory=list)
     old_verdict: str = ""
     new_verdict: str = ""
+    old_signoff: dict[str, Any] | None = None
 
     @property
     def beyond(self) -> pd.DataFrame:
@@ -95,17 +96,27 @@ class RecordChanges:
                 lines += ["", table.to_string(index=False)]
         return "\n".join(lines)
 
-    def to_markdown(self) -> str:
-        """The changes as Markdown: the summary first, then settings and quantities."""
+    def to_markdown(self, path: str | os.PathLike[str] | None = None) -> str:
+        """The changes as Markdown: the summary first, then settings and quantities; written
+        to ``path`` if given (as the audit's and the model choice's reports are)."""
+        from forecastaudit.files import write_text_atomic
         from forecastaudit.report.record_changes import render_changes_markdown
 
-        return render_changes_markdown(self)
+        text = render_changes_markdown(self)
+        if path is not None:
+            write_text_atomic(path, text)
+        return text
 
-    def to_html(self) -> str:
-        """The changes as one self-contained HTML page, summary first."""
+    def to_html(self, path: str | os.PathLike[str] | None = None) -> str:
+        """The changes as one self-contained HTML page, summary first; written to ``path``
+        if given."""
+        from forecastaudit.files import write_text_atomic
         from forecastaudit.report.record_changes import render_changes_html
 
-        return render_changes_html(self)
+        text = render_changes_html(self)
+        if path is not None:
+            write_text_atomic(path, text)
+        return text
 
     def to_dict(self) -> dict[str, Any]:
         """JSON-ready form."""
@@ -116,6 +127,7 @@ class RecordChanges:
             "changes": list(self.changes),
             "old_verdict": self.old_verdict,
             "new_verdict": self.new_verdict,
+            "old_signoff": self.old_signoff,
             "rows": self.table.to_dict(orient="records"),
         }
 
@@ -473,4 +485,5 @@ def compare_loaded(
         changes=notes + _setting_changes(a, b),
         old_verdict=a["verdict"],
         new_verdict=b["verdict"],
+        old_signoff=dict(a["signoff"]) if isinstance(a.get("signoff"), Mapping) else None,
     )

@@ -33,6 +33,17 @@ def summary_lines(changes: RecordChanges) -> list[str]:
         if changes.same_spec
         else "Specification: DIFFERENT; quantities are compared by name only.",
         f"Verdict of the audits: {changes.old_verdict} -> {changes.new_verdict}.",
+        *_signoff_line(changes),
+    ]
+
+
+def _signoff_line(changes: RecordChanges) -> list[str]:
+    block = changes.old_signoff
+    if not block:
+        return ["The old record has no sign-off."]
+    return [
+        f"The old record was signed off: {block.get('decision')} by {block.get('reviewer')} "
+        f"on {block.get('date')} under {block.get('policy_reference')}."
     ]
 
 
