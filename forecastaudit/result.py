@@ -191,20 +191,22 @@ class AuditResult:
             When a field is empty or invalid, or the audit has a sign-off already.
         """
         from forecastaudit.errors import RecordError
-        from forecastaudit.record.signing import signoff_block
+        from forecastaudit.record.signing import check_decision, signoff_block
 
         if self.signoff is not None:
             raise RecordError(
                 "This audit has a sign-off already; an audit is signed off once. Re-run the "
                 "audit for a new review."
             )
-        self.signoff = signoff_block(
+        block = signoff_block(
             reviewer=reviewer,
             decision=decision,
             policy_reference=policy_reference,
             comments=comments,
             date=date,
         )
+        check_decision(block, self.verdict)
+        self.signoff = block
 
     # ------------------------------------------------------------------ output
     def to_dict(self, *, created: str | None = None, timings: bool = True) -> dict[str, Any]:

@@ -271,6 +271,7 @@ def test_signoff_sheet_escapes_and_can_be_left_out(failing_record: dict, tmp_pat
     record = _write(tmp_path, "a.json", failing_record)
     reviewer = "<script>alert(1)</script> | *Q*"
     args = ["--reviewer", reviewer, "--decision", "approved-with-conditions", "--policy", "P"]
+    args += ["--comments", "Re-audit at the next data refresh."]
     assert main(["sign-off", str(record), *args, "--out", str(tmp_path / "b.json")]) == EXIT_PASS
     html = (tmp_path / "b.signoff.html").read_text()
     assert "<script>" not in html and "&lt;script&gt;" in html
@@ -280,3 +281,20 @@ def test_signoff_sheet_escapes_and_can_be_left_out(failing_record: dict, tmp_pat
     assert main(["sign-off", str(record), *args, "--no-sheet"]) == EXIT_PASS
     assert not (tmp_path / "a.signoff.html").exists()
     assert json.loads(record.read_text())["signoff"]["reviewer"] == reviewer
+
+
+def test_a_decision_that_needs_words_must_have_them(failing_record: dict) -> None:
+    """Conditions must be stated; approving a failing audit must say why."""
+    base = {"reviewer": "R. Okafor", "policy_reference": "MRM-7"}
+    with pytest.raises(RecordError, match="must state them"):
+        add_signoff(failing_record, decision="approved-with-conditions", **base)
+    with pytest.raises(RecordError, match="verdict is fail"):
+        add_signoff(failing_record, decision="approved", **base)
+    accepted = add_signoff(
+        failing_record,
+        decision="approved",
+        comments="statsforecast is not used in production; accepted by the model owner.",
+        **base,
+    )
+    assert accepted["signoff"]["decision"] == "approved"
+    assert add_signoff(failing_record, decision="rejected", **base)["signoff"]["comments"] == ""

@@ -38,6 +38,7 @@ if TYPE_CHECKING:
 __all__ = [
     "DECISIONS",
     "add_signoff",
+    "check_decision",
     "generate_key_pair",
     "key_id",
     "load_private_key",
@@ -264,6 +265,32 @@ def signoff_block(
     }
 
 
+def check_decision(block: Mapping[str, str], verdict: str) -> None:
+    """Refuse a decision that needs words it does not have.
+
+    Approval with conditions must state the conditions, and approving an audit whose
+    verdict is ``fail`` must say why the failure is accepted: both in ``comments``.
+
+    Raises
+    ------
+    RecordError
+        When the comments are empty in either case.
+    """
+    if block.get("comments", "").strip():
+        return
+    if block.get("decision") == "approved-with-conditions":
+        raise RecordError(
+            "An approval with conditions must state them: give the conditions in comments "
+            "(--comments on the command line)."
+        )
+    if verdict == "fail" and block.get("decision") == "approved":
+        raise RecordError(
+            "This audit's verdict is fail; approving it must say why the failure is accepted "
+            "(comments, --comments on the command line), or the decision is "
+            "approved-with-conditions or rejected."
+        )
+
+
 def add_signoff(
     record: Mapping[str, Any],
     *,
@@ -294,8 +321,9 @@ def add_signoff(
     ------
     RecordError
         When a field is empty or of the wrong type, the decision is not one of
-        :data:`DECISIONS`, or the record is already signed (a sign-off added afterwards would
-        not be covered by those signatures; add it first, then sign).
+        :data:`DECISIONS`, the record is already signed (a sign-off added afterwards would
+        not be covered by those signatures; add it first, then sign), or the decision needs
+        comments it does not have (see :func:`check_decision`).
     """
     from forecastaudit.record.document import content_digest, validate_record
 
@@ -316,6 +344,7 @@ def add_signoff(
             "This record has a sign-off already; a record is signed off once. Re-run the "
             "audit for a new review."
         )
+    check_decision(block, str(record.get("verdict", "")))
     out = copy.deepcopy(dict(record))
     out["signoff"] = block
     out["content_sha256"] = content_digest(out)
