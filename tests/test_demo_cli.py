@@ -170,4 +170,11 @@ def test_order_search_joins_the_audit_record_and_reports(tmp_path: Path) -> None
     assert any(f["kind"] == "search-rank" for f in record["findings"])
     html = report.to_html()
     assert "Order searches" in html and "Automatic order searches" in html
-    assert "Automatic order searches" in report.to_markdown()
+    markdown = report.to_markdown()
+    assert "Automatic order searches" in markdown
+    # Terse column names get plain headings, and ranks are said to be within a differencing.
+    assert "rank within its differencing" in markdown and "| rank |" not in markdown
+    assert "observations after differencing" in markdown and "| n w |" not in markdown
+    assert "each choice has its own best model at rank 1" in markdown
+    defaults = record["order_search"]["default_constant"]
+    assert all(row["default_adds"] is not None or row["reason"] for row in defaults)

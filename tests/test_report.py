@@ -13,6 +13,7 @@ import re
 import shutil
 import subprocess
 import tempfile
+from collections.abc import Callable
 from pathlib import Path
 
 import markupsafe
@@ -123,7 +124,10 @@ def test_html_embeds_images_with_alt_text(html: str) -> None:
 
 def test_html_is_self_contained(html: str) -> None:
     assert html.startswith("<!DOCTYPE html>")
-    assert "<script" not in html
+    # The one script is inline: it opens the closed <details> for printing.
+    scripts = re.findall(r"<script([^>]*)>(.*?)</script>", html, re.S)
+    assert len(scripts) == 1 and scripts[0][0] == ""
+    assert "beforeprint" in scripts[0][1] and "afterprint" in scripts[0][1]
     assert "<link" not in html
     assert not re.search(r'(src|href)="(https?:)?//', html)
     assert "<style>" in html and "@media print" in html
@@ -373,6 +377,81 @@ def test_likelihood_profile_figure() -> None:
     plot = plots.likelihood_profile_figure(t, 10.0 - (t - 0.5) ** 2, "a", "b", tolerance=0.01)
     assert plot.png[:4] == b"\x89PNG"
     assert "from a to b" in plot.alt
+
+
+def _drawn_styles(
+    monkeypatch: pytest.MonkeyPatch, draw: Callable[[], plots.Plot | None]
+) -> dict[str, tuple[str, str]]:
+    """The colour and marker of each estimator's markers in the figure ``draw()`` makes."""
+    from matplotlib.colors import to_hex
+    from matplotlib.figure import Figure
+
+    seen: dict[str, tuple[str, str]] = {}
+    real = plots.figure_to_png
+
+    def record(figure: Figure) -> str:
+        for ax in figure.axes:
+            ticks = zip(ax.get_yticks(), ax.get_yticklabels(), strict=True)
+            rows = {round(t): label.get_text() for t, label in ticks}
+            for line in ax.get_lines():
+                if line.get_marker() in (None, "None", ""):
+                    continue
+                label = line.get_label()
+                if label.startswith("_"):  # a dot chart's point: named by its row
+                    label = rows.get(round(line.get_ydata()[0]), label)
+                seen[label] = (to_hex(line.get_color()), line.get_marker())
+        return real(figure)
+
+    with monkeypatch.context() as patch:
+        patch.setattr(plots, "figure_to_png", record)
+        assert draw() is not None
+    return seen
+
+
+def test_estimator_styles_are_one_per_key() -> None:
+    styles = plots.estimator_styles(["statsforecast", "reference", "statsmodels-sarimax"])
+    assert styles["reference"] == plots.REFERENCE_STYLE
+    assert styles["reference"]["marker"] not in plots.MARKERS
+    assert styles["statsforecast"] == {"color": "#1f4e79", "marker": "o", "linestyle": "-"}
+    assert styles["statsmodels-sarimax"] == {"color": "#b5541b", "marker": "s", "linestyle": "--"}
+    # A key's style depends on the keys given, never on which of them a figure draws.
+    assert plots.estimator_styles(["statsforecast", "statsmodels-sarimax"]) == styles
+
+
+def test_every_plot_draws_a_key_in_its_one_style(
+    report: fa.AuditResult, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    styles = plots.report_styles(report)
+    assert list(styles) == ["reference", "statsmodels-sarimax", "statsforecast"]
+    # The grid lists its points in another order than the parameter plot lists its rows.
+    grid = report.likelihood_grid
+    assert grid is not None and set(grid["points"]) == {"reference", "statsforecast"}
+    turned = dataclasses.replace(
+        report, likelihood_grid={**grid, "points": dict(reversed(grid["points"].items()))}
+    )
+    in_parameters = _drawn_styles(monkeypatch, lambda: plots.parameter_plot(turned))
+    in_grid = _drawn_styles(monkeypatch, lambda: plots.likelihood_grid_plot(turned))
+    in_forecasts = _drawn_styles(monkeypatch, lambda: plots.forecast_plot(turned))
+    expected = {k: (v["color"], v["marker"]) for k, v in styles.items()}
+    assert in_parameters == expected
+    assert in_grid == {k: expected[k] for k in ("reference", "statsforecast")}
+    assert in_grid["statsforecast"] == in_parameters["statsforecast"] == ("#b5541b", "s")
+    assert in_grid["reference"] == in_parameters["reference"] == ("#1d2733", "*")
+    assert {k: in_forecasts[k] for k in ("statsmodels-sarimax", "statsforecast")} == {
+        k: expected[k] for k in ("statsmodels-sarimax", "statsforecast")
+    }
+
+
+def test_long_unspaced_runs_alone_may_break_in_print() -> None:
+    from forecastaudit.report.html import breakable
+
+    digest = "d68b242c7f23882e16ee5dd451a1a0101666850dbc88a95024600f17185e4487"
+    assert str(breakable(f"<b>x</b> {digest} seasonal")) == (
+        f'&lt;b&gt;x&lt;/b&gt; <span class="long">{digest}</span> seasonal'
+    )
+    assert str(breakable("ARIMA(0,1,1)x(0,1,2)12 and -2.5468")) == (
+        "ARIMA(0,1,1)x(0,1,2)12 and -2.5468"
+    )
 
 
 # ---------------------------------------------------------------------- in a browser

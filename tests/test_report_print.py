@@ -2,6 +2,8 @@
 
 * A report with order-search tables printed to PDF by headless Chromium keeps every column
   (the PDF's text, read with pypdf, holds every column heading).
+* Printed, the findings for information are there (with or without scripts), and no number
+  or ordinary word of a table is broken across lines.
 * Order-search tables are labelled by model or search, never by a raw position, and the
   "within 2 units" table lists only those candidates.
 * Ordinary coefficients are never written in scientific notation.
@@ -29,6 +31,7 @@ import forecastaudit as fa
 from forecastaudit.diagnosis.findings import Finding
 from forecastaudit.model_choice import ModelChoiceResult
 from forecastaudit.report import content
+from forecastaudit.report.html import LONG_RUN
 from forecastaudit.search.order_search import audit_order_search
 
 CHROMIUM = "/usr/bin/chromium"
@@ -80,23 +83,33 @@ def _print_to_pdf(html: str, folder: Path) -> Path:
     return pdf
 
 
+def _pdf_text(html: str) -> str:
+    """The text of ``html`` printed to PDF by headless Chromium (skips without it)."""
+    if shutil.which(CHROMIUM) is None:
+        pytest.skip(f"{CHROMIUM} is not installed; the printed report was not checked")
+    pypdf = pytest.importorskip("pypdf", reason="pypdf reads the printed PDF's text")
+    with tempfile.TemporaryDirectory() as folder:
+        pdf = _print_to_pdf(html, Path(folder))
+        return "\n".join(page.extract_text() for page in pypdf.PdfReader(pdf).pages)
+
+
+@pytest.fixture(scope="module")
+def printed(searched: fa.AuditResult) -> str:
+    """The text of the searched audit's report printed to PDF."""
+    return _pdf_text(searched.to_html())
+
+
 def _squeezed(text: str) -> str:
     # NFKC undoes the ligatures the PDF's fonts use ("ﬀ" in "differencing", "ﬁ").
     return re.sub(r"\s+", "", unicodedata.normalize("NFKC", text))
 
 
 def test_printed_report_keeps_every_column_of_the_order_search_tables(
-    searched: fa.AuditResult,
+    searched: fa.AuditResult, printed: str
 ) -> None:
-    if shutil.which(CHROMIUM) is None:
-        pytest.skip(f"{CHROMIUM} is not installed; the printed report was not checked")
-    pypdf = pytest.importorskip("pypdf", reason="pypdf reads the printed PDF's text")
     tables = content.order_search_tables(searched)
     assert {t.id for t in tables} >= {"order-search-selections", "order-search-candidates"}
-    with tempfile.TemporaryDirectory() as folder:
-        pdf = _print_to_pdf(searched.to_html(), Path(folder))
-        text = "\n".join(page.extract_text() for page in pypdf.PdfReader(pdf).pages)
-    printed = _squeezed(text)
+    printed = _squeezed(printed)
     # Every heading of every order-search column, whether it prints as a column heading
     # or (in a turned table) as a row heading.
     search = searched.order_search
@@ -108,11 +121,81 @@ def test_printed_report_keeps_every_column_of_the_order_search_tables(
                 continue  # the table lists only those; the column would say "yes" throughout
             if any(isinstance(v, dict | list) for v in frame[column]):
                 continue  # kept in the record, not in a table
-            expected.add(str(column).replace("_", " "))
+            if column == "reason" and frame[column].isna().all():
+                continue  # no default fit failed: the column is left out
+            # The heading the report gives it (plain words for the terse names).
+            expected.add(content._ORDER_HEADINGS.get(str(column), str(column).replace("_", " ")))
     missing = sorted(h for h in expected if _squeezed(h) not in printed)
     assert not missing, f"columns lost on paper: {missing}"
     # The table cells print too: the selected model and the best candidate.
     assert _squeezed(search.selections["selected"].iloc[0]) in printed
+
+
+def test_printed_report_holds_the_findings_for_information(
+    searched: fa.AuditResult, printed: str
+) -> None:
+    info = searched.findings_of(severity="info")
+    assert len(info) == 5
+    text = _squeezed(printed)
+    missing = [f.message for f in info if _squeezed(f.message) not in text]
+    assert not missing, f"findings for information left off the paper: {missing}"
+    assert _squeezed(f"For information ({len(info)})") in text
+
+
+def _print_script(html: str) -> str:
+    """The page's one script: inline, it opens the closed <details> for printing only."""
+    scripts = re.findall(r"<script([^>]*)>(.*?)</script>", html, re.S)
+    assert len(scripts) == 1 and scripts[0][0] == "", scripts
+    body = scripts[0][1]
+    assert 'addEventListener("beforeprint"' in body and 'addEventListener("afterprint"' in body
+    assert "d.open = true" in body and "d.open = false" in body
+    return body
+
+
+def test_pages_with_details_open_them_for_print(searched: fa.AuditResult) -> None:
+    page = searched.to_html()
+    assert "<details" in page
+    choice = _choice().to_html()
+    assert "<details" in choice
+    assert _print_script(page) == _print_script(choice)
+    assert "details::details-content { content-visibility: visible; }" in page
+
+
+def test_printed_wide_table_breaks_no_number_or_word(searched: fa.AuditResult) -> None:
+    """The differencing decisions of four stacks (as an audit with ``order_search=True``
+    writes them), printed from the page with its script removed."""
+    search = searched.order_search
+    stacks = ("pmdarima", "statsforecast", "sktime", "sktime-statsforecast")
+    tests = pd.concat(
+        [search.differencing_tests.assign(search=s) for s in stacks], ignore_index=True
+    )
+    wide = dataclasses.replace(
+        searched, order_search=dataclasses.replace(search, differencing_tests=tests)
+    )
+    every = content.order_search_tables(wide)
+    tables = [t for t in every if t.id.startswith("order-search-differencing")]
+    assert tables[0].corner == "search" and len(tables[0].rows) == 12  # not turned
+    page = wide.to_html()
+    without_script = page.replace(f"<script>{_print_script(page)}</script>", "")
+    assert "<script" not in without_script
+    text = unicodedata.normalize("NFKC", _pdf_text(without_script))
+    # The words printed from the differencing tables' caption to the next table's.
+    after = every[every.index(tables[-1]) + 1]
+    start = text.index(tables[0].caption)
+    words = set(text[start : text.index(after.caption.split(":")[0], start)].split())
+    # Known numbers of the table, whole: the KPSS statistic and the seasonal strength.
+    assert {"1.4915", "0.9268", "0.0278", "0.64000"} <= words
+    for table in tables:
+        for heading in table.columns:
+            assert _squeezed(heading) in _squeezed(text), heading
+            assert set(heading.split()) <= words, heading
+        for row in table.rows:
+            for cell in row.cells:
+                broken = [w for w in cell.text.split() if len(w) < LONG_RUN and w not in words]
+                assert not broken, (row.header, cell.text, broken)
+    # The page's own style opens the findings for information without the script.
+    info = wide.findings_of(severity="info")
+    assert info and all(_squeezed(f.message) in _squeezed(text) for f in info)
 
 
 def test_order_search_tables_have_no_raw_positions(searched: fa.AuditResult) -> None:
@@ -226,7 +309,7 @@ def test_model_choice_html_report() -> None:
     assert 'id="table-model-choice-mase-ranks"' in html
     assert 'id="table-model-choice-scores"' in html
     assert 'id="table-model-choice-aicc-ranks"' in html
-    assert "ARIMA(1,1,0)" in html and "<script" not in html
+    assert "ARIMA(1,1,0)" in html and _print_script(html)  # the one script: for print
     assert fa.CAUTION.split(",")[0] in html
 
 

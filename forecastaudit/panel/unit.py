@@ -214,6 +214,7 @@ def _first_cause(result: Any) -> Any:
     if not top:
         return None
     production = result.production
+
     # A cause of a disagreement (material first) says more than a symptom of it such as a
     # convergence code: "stopped short, material" rather than "did not report convergence".
     def weight(f: Any) -> tuple[int, int]:

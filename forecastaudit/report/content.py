@@ -1134,10 +1134,56 @@ _ORDER_SEARCH_TABLES = (
     ("selections", "Automatic order searches: what each stack selected"),
     ("differencing_tests", "Differencing decisions: each stack's tests on the same data"),
     ("decomposition", "Causes of the disagreements: re-runs with one setting harmonised"),
-    ("candidates", "Exhaustive search under the reference AICc: candidates within 2 units"),
+    (
+        "candidates",
+        "Exhaustive search under the reference AICc: candidates within 2 units of the best "
+        "of their differencing",
+    ),
     ("default_constant", "What each stack would add with its defaults"),
     ("timings", "Search times"),
 )
+
+
+#: Plain headings of the order-search columns whose names are terse.
+_ORDER_HEADINGS = {
+    "n_w": "observations after differencing",
+    "in_grid": "in the exhaustive grid",
+    "grid_best_aicc": "best AICc in the grid (same differencing)",
+    "best_aicc": "best reference AICc (same differencing)",
+    "best_in_differencing": "best model of the same differencing",
+    "reference_aicc": "reference AICc of the selection",
+    "delta_aicc": "AICc above the best of its differencing",
+    "rank": "rank within its differencing",
+    "of": "candidates of that differencing",
+    "chosen_by": "selected by",
+    "specified": "the audited model",
+    "k": "coefficients (with sigma2)",
+    "default_adds": "its defaults add",
+    "implies": "which means",
+    "reason": "why it failed",
+}
+
+#: The columns a reader compares first, put first (the rest follow in their order).
+_ORDER_FIRST = {
+    "candidates": ("d", "D", "rank", "delta_aicc", "aicc", "chosen_by", "specified"),
+    "selections": ("selected", "d", "D", "reference_aicc", "rank", "of", "delta_aicc"),
+}
+
+_ORDER_NOTES = {
+    "candidates": (
+        "Rank and AICc difference are within each differencing choice (d, D): "
+        "log-likelihoods of differently differenced series do not compare, so each choice "
+        "has its own best model at rank 1."
+    ),
+    "selections": (
+        "The rank of a selection is among the exhaustive search's candidates of the same "
+        "differencing, under the reference AICc."
+    ),
+    "default_constant": (
+        "Each selected order without a constant, fitted here with each library's defaults: "
+        "'nothing' means its defaults add no constant."
+    ),
+}
 
 
 def order_search_tables(report: AuditResult) -> list[Table]:
@@ -1160,14 +1206,20 @@ def order_search_tables(report: AuditResult) -> list[Table]:
         notes: list[str] = []
         if name == "candidates":
             frame, notes = _within_support_band(frame)
+        if name in _ORDER_NOTES:
+            notes = [_ORDER_NOTES[name], *notes]
         frame = _labelled_rows(frame)
+        first = [c for c in _ORDER_FIRST.get(name, ()) if c in frame.columns]
+        frame = frame[first + [c for c in frame.columns if c not in first]]
+        if name == "default_constant" and "reason" in frame and frame["reason"].isna().all():
+            frame = frame.drop(columns=["reason"])
         table = frame_table(
             frame,
             id=f"order-search-{name.replace('_', '-')}",
             caption=caption,
             corner=str(frame.index.name or ""),
             columns=[
-                (str(c), str(c).replace("_", " "), _kind(frame[c]))
+                (str(c), _ORDER_HEADINGS.get(str(c), str(c).replace("_", " ")), _kind(frame[c]))
                 for c in frame.columns
                 if not any(isinstance(v, dict | list) for v in frame[c])  # kept in the record
             ],
@@ -1189,7 +1241,8 @@ def _within_support_band(frame: pd.DataFrame) -> tuple[pd.DataFrame, list[str]]:
     if isinstance(frame.index, pd.RangeIndex):
         kept = kept.reset_index(drop=True)
     note = (
-        f"{len(kept)} of {len(frame)} candidates lie within 2 AICc units of the best (Burnham "
+        f"{len(kept)} of {len(frame)} candidates lie within 2 AICc units of the best of their "
+        "differencing (Burnham "
         "& Anderson 2002, section 2.6); the record lists them all."
     )
     return kept, [note]

@@ -6,14 +6,20 @@ section's heading and intro, so the HTML and the Markdown report cannot differ i
 
 Jinja2 runs with autoescape on, so every user-supplied string (series name, estimator keys,
 column names, messages) is escaped wherever it appears.
+
+Printed, a table cell wraps only at spaces; a long unspaced run of characters in a text
+cell (a hash, a module path) is marked by :func:`breakable` so that it alone may break
+anywhere. A closed ``<details>`` opens for printing (``print_details.html.j2``).
 """
 
 from __future__ import annotations
 
+import re
 from functools import lru_cache
 from typing import TYPE_CHECKING
 
 import jinja2
+import markupsafe
 
 from forecastaudit.report import content
 from forecastaudit.report.sections import SECTIONS, ReportData, Section, built_sections
@@ -21,7 +27,15 @@ from forecastaudit.report.sections import SECTIONS, ReportData, Section, built_s
 if TYPE_CHECKING:
     from forecastaudit.result import AuditResult
 
-__all__ = ["SECTIONS", "TEMPLATES", "Section", "render_compact_html", "render_html"]
+__all__ = [
+    "LONG_RUN",
+    "SECTIONS",
+    "TEMPLATES",
+    "Section",
+    "breakable",
+    "render_compact_html",
+    "render_html",
+]
 
 # The template that draws each kind of section (its body; heading and intro are the page's).
 TEMPLATES: dict[str, str] = {
@@ -32,6 +46,24 @@ TEMPLATES: dict[str, str] = {
     "plots": "section_plots.html.j2",
     "caution": "section_caution.html.j2",
 }
+
+
+#: An unspaced run of at least this many characters may break anywhere in a printed table
+#: cell; shorter ones (words, numbers, model orders such as ARIMA(0,1,1)x(0,1,2)12) never do.
+LONG_RUN = 25
+_LONG_RUN = re.compile(rf"(\S{{{LONG_RUN},}})")
+
+
+def breakable(text: object) -> markupsafe.Markup:
+    """``text`` escaped, each unspaced run of :data:`LONG_RUN` characters or more in a
+    ``<span class="long">`` (which the print style lets break anywhere)."""
+    parts = _LONG_RUN.split(str(text))
+    return markupsafe.Markup("").join(
+        markupsafe.Markup('<span class="long">{}</span>').format(part)
+        if i % 2
+        else markupsafe.escape(part)
+        for i, part in enumerate(parts)
+    )
 
 
 def _caution() -> str:
@@ -51,6 +83,7 @@ def _environment() -> jinja2.Environment:
         keep_trailing_newline=True,
     )
     env.globals["flag_marks"] = content.FLAG_MARKS
+    env.filters["breakable"] = breakable
     return env
 
 

@@ -7,7 +7,9 @@ global figure state or backend choice leaks into the caller's session) and retur
 data for it. Figures are released as soon as they are drawn.
 
 Colours come from :data:`PALETTE`; estimators are told apart by marker and line style as
-well as colour, so the figures read in greyscale and with colour-vision deficiencies.
+well as colour, so the figures read in greyscale and with colour-vision deficiencies. Each
+estimator keeps one style in every figure of a report (:func:`estimator_styles`), and the
+reference optimum always has :data:`REFERENCE_STYLE`.
 
 Figures are drawn per engine, not per wrapper: wrappers of one engine that return the same
 estimate (:func:`estimator_entries`) are one entry, labelled with the engine and the number
@@ -36,9 +38,11 @@ if TYPE_CHECKING:
 
 __all__ = [
     "PALETTE",
+    "REFERENCE_STYLE",
     "Entry",
     "Plot",
     "estimator_entries",
+    "estimator_styles",
     "figure_to_png",
     "forecast_plot",
     "likelihood_grid_plot",
@@ -46,6 +50,7 @@ __all__ = [
     "likelihood_profile_plots",
     "parameter_plot",
     "report_plots",
+    "report_styles",
     "residual_autocorrelation_plot",
     "series_plot",
 ]
@@ -178,12 +183,44 @@ def _future_axis(report: AuditResult, steps: int) -> np.ndarray | Any:
     return np.asarray(future)
 
 
-def _style_of(position: int) -> dict[str, Any]:
-    return {
-        "color": ESTIMATOR_COLOURS[position % len(ESTIMATOR_COLOURS)],
-        "marker": MARKERS[position % len(MARKERS)],
-        "linestyle": LINESTYLES[position % len(LINESTYLES)],
-    }
+# ---------------------------------------------------------------------- one style per key
+#: The reference optimum's style in every figure; its star marker is no estimator's.
+REFERENCE_STYLE: dict[str, Any] = {"color": PALETTE["reference"], "marker": "*", "linestyle": "-"}
+
+
+def estimator_styles(keys: Sequence[str]) -> dict[str, dict[str, Any]]:
+    """One colour, marker and line style per estimator key.
+
+    The keys other than the reference take the colours, markers and line styles in turn, in
+    the order given; the reference optimum always has :data:`REFERENCE_STYLE`. Every figure
+    of a report draws with the styles of :func:`report_styles`, so a key looks the same in
+    each of them.
+    """
+    styles = {REFERENCE_KEY: REFERENCE_STYLE}
+    for key in keys:
+        if key in styles:
+            continue
+        position = len(styles) - 1
+        styles[key] = {
+            "color": ESTIMATOR_COLOURS[position % len(ESTIMATOR_COLOURS)],
+            "marker": MARKERS[position % len(MARKERS)],
+            "linestyle": LINESTYLES[position % len(LINESTYLES)],
+        }
+    return styles
+
+
+def report_styles(report: AuditResult) -> dict[str, dict[str, Any]]:
+    """The styles of every key a figure of ``report`` can draw: the audit's estimators in the
+    audit's order, then any other key of its parameters, forecasts, profiles or grid."""
+    grid = report.likelihood_grid or {}
+    keys = [
+        *report.estimates,
+        *report.parameters.columns.drop("reference_se", errors="ignore"),
+        *report.forecasts,
+        *report.profiles,
+        *grid.get("points", {}),
+    ]
+    return estimator_styles([str(k) for k in keys])
 
 
 # ---------------------------------------------------------------------- one entry per engine
@@ -320,6 +357,7 @@ def parameter_plot(report: AuditResult) -> Plot | None:
         return None
     names = list(frame.index)
     entries = estimator_entries(report, keys)
+    styles = report_styles(report)
     order = list(reversed(entries))  # first estimator on top
     figure = _new_figure(8.6, 0.9 + len(names) * (0.55 + 0.32 * len(entries)))
     axes = figure.subplots(len(names), 1, squeeze=False)[:, 0]
@@ -345,13 +383,13 @@ def parameter_plot(report: AuditResult) -> Plot | None:
             value = frame.at[name, entry.key]
             if not _finite(value):
                 continue
-            style = _style_of(entries.index(entry))
+            style = styles[entry.key]
             ax.plot(
                 [value],
                 [row],
                 linestyle="none",
                 marker=style["marker"],
-                markersize=7,
+                markersize=9 if entry.key == REFERENCE_KEY else 7,
                 color=style["color"],
                 markeredgecolor="white",
                 markeredgewidth=0.6,
@@ -500,19 +538,20 @@ def forecast_plot(report: AuditResult, history: int | None = None) -> Plot | Non
         )
 
     entries = estimator_entries(report, list(forecasts), same_forecast)
-    for position, entry in enumerate(entries):
+    styles = report_styles(report)
+    for entry in entries:
         key, fc = entry.key, forecasts[entry.key]
         if key == REFERENCE_KEY:
             ax.plot(
                 x_future,
                 fc.median,
-                color=PALETTE["reference"],
+                color=REFERENCE_STYLE["color"],
                 lw=1.8,
                 zorder=2.5,  # under the estimators' markers, which often sit on it
                 label="reference optimum",
             )
             continue
-        style = _style_of(position)
+        style = styles[key]
         ax.plot(
             x_future,
             fc.median,
@@ -765,19 +804,17 @@ def likelihood_grid_plot(report: AuditResult) -> Plot | None:
         ax.clabel(contours, fmt=lambda v: f"-{best - v:g}", fontsize=7)
     points = grid.get("points", {})
     entries = estimator_entries(report, list(points))
-    for i, entry in enumerate(entries):
+    styles = report_styles(report)
+    for entry in entries:
         point = points[entry.key]
+        style = styles[entry.key]
         ax.plot(
             point[grid["names"][0]],
             point[grid["names"][1]],
-            marker=MARKERS[i % len(MARKERS)],
-            color=(
-                PALETTE["reference"]
-                if entry.key == REFERENCE_KEY
-                else ESTIMATOR_COLOURS[i % len(ESTIMATOR_COLOURS)]
-            ),
+            marker=style["marker"],
+            color=style["color"],
             linestyle="none",
-            markersize=7,
+            markersize=9 if entry.key == REFERENCE_KEY else 7,
             label=_label(entry.label),
         )
     ax.set_xlabel(grid["names"][0])

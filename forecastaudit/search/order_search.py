@@ -199,8 +199,13 @@ def _default_constant_check(
                     "model": _text(plain),
                     "estimator": key,
                     "status": estimate.status,
-                    "default_adds": ", ".join(f"{k}={v!r}" for k, v in added.items()) or None,
+                    "default_adds": (
+                        ", ".join(f"{k}={v!r}" for k, v in added.items())
+                        if added
+                        else ("nothing" if estimate.ok else None)
+                    ),
                     "implies": implied if added else None,
+                    "reason": None if estimate.ok else str(estimate.reason or "")[:160],
                 }
             )
             if added:
