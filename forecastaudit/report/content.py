@@ -35,7 +35,9 @@ __all__ = [
     "estimator_table",
     "finding_groups",
     "forecast_table",
+    "forecast_values_table",
     "format_number",
+    "future_regressors_table",
     "holdout_tables",
     "likelihood_table",
     "materiality_table",
@@ -45,6 +47,7 @@ __all__ = [
     "policy",
     "provenance_table",
     "residual_table",
+    "significant",
     "summary",
     "tolerance_table",
 ]
@@ -115,7 +118,7 @@ def format_number(value: Any, kind: str = "general") -> str:
     if number == 0.0:
         number = 0.0  # no "-0"
     if kind == "param":
-        return _significant(number, 5)
+        return significant(number, 5)
     if kind in ("loglike", "criterion"):
         return f"{number:.4f}"
     if kind == "seconds":
@@ -130,14 +133,14 @@ def format_number(value: Any, kind: str = "general") -> str:
         return f"{number:g}"
     if kind.startswith("fixed"):
         return f"{number:.{int(kind[len('fixed') :])}f}"
-    return _significant(number, 6)
+    return significant(number, 6)
 
 
 #: Beyond these magnitudes a number is written in scientific notation (nothing ordinary is).
 _PLAIN_RANGE = (1e-9, 1e12)
 
 
-def _significant(number: float, digits: int) -> str:
+def significant(number: float, digits: int) -> str:
     """``number`` to ``digits`` significant digits in plain decimal notation.
 
     ``format(x, 'g')`` switches to scientific notation below 1e-4 (a drift of 0.0000167

@@ -48,7 +48,7 @@ TABLE_COLUMNS: tuple[tuple[str, str, str], ...] = (
     ("fail", "Fail", "count"),
     ("warn", "Warn", "count"),
     ("n", "n", "count"),
-    ("seconds", "Seconds", "number"),
+    ("seconds", "Seconds", "seconds"),
     ("error", "Why not audited", "text"),
 )
 
@@ -72,7 +72,11 @@ def _cell(value: Any, kind: str) -> tuple[str, str, bool]:
     if kind == "count":
         return (str(int(value)), f"{float(value):.12g}", True)
     if kind == "number":
-        return (content.format_number(value), f"{float(value):.12g}", True)
+        # Three significant digits: a gap of 0.0000646 against a tolerance of 0.01 is
+        # read for its size, not its sixth digit (the record keeps every digit).
+        return (content.significant(float(value), 3), f"{float(value):.12g}", True)
+    if kind == "seconds":
+        return (content.format_number(value, "seconds"), f"{float(value):.12g}", True)
     if isinstance(value, bool | np.bool_):
         text = "yes" if value else "no"
         return (text, text, False)
