@@ -328,6 +328,7 @@ def _cmd_compare_models(args: argparse.Namespace) -> int:
             "--future gives future regressor values, but no --model names regressors "
             "(+x(price,promo))."
         )
+    invocation = _invocation(args, args.data)  # hashed before reading: the bytes compared
     series = read_series(args.data, args.column, args.date_column, exclude=columns)
     regressors = read_regressors(args.data, columns, args.date_column) if columns else None
     future = read_regressors(args.future, columns) if args.future and columns else None
@@ -342,6 +343,7 @@ def _cmd_compare_models(args: argparse.Namespace) -> int:
         regressors=regressors,
         future_regressors=future,
     )
+    result.invocation = invocation
     print(result)
     if args.out:
         # The JSON and, beside it, the HTML and Markdown reports (same name, other suffixes);
@@ -919,6 +921,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     try:
         return _run(args)
     finally:
+        guarded.flush()  # what is still buffered, while a gone reader is still caught
         sys.stdout = guarded.stream
 
 

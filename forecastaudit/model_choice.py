@@ -58,6 +58,9 @@ class ModelChoiceResult:
         The audit of each model (memory only, not in :meth:`to_dict`).
     created : str
         UTC time the comparison finished (ISO 8601).
+    invocation : dict or None
+        How the comparison was started, when the command line started it (the arguments
+        and the input files' names and SHA-256).
 
     ``scores`` also has, per (model, estimator), ``gap``: the estimate's log-likelihood
     below that model's reference optimum, and ``audit_verdict``: that model's audit verdict.
@@ -75,6 +78,7 @@ class ModelChoiceResult:
     seconds: float = 0.0
     reports: dict[str, Any] = field(default_factory=dict, repr=False)
     created: str = ""
+    invocation: dict[str, Any] | None = None
 
     def to_dict(self) -> dict[str, Any]:
         """JSON-ready form (numpy values to Python, NaN to None), with what a reviewer needs
@@ -86,6 +90,11 @@ class ModelChoiceResult:
             "record": "forecastaudit-model-choice",
             "created": self.created,
             **({"provenance": _json_ready(provenance(first))} if first is not None else {}),
+            # Each candidate's data fingerprint (with the regressor columns it uses).
+            "fingerprints": {
+                label: report.series.fingerprint for label, report in self.reports.items()
+            },
+            **({"invocation": _json_ready(self.invocation)} if self.invocation else {}),
             "models": [s.to_dict() for s in self.specs],
             "holdout": self.holdout,
             "origins": self.origins,

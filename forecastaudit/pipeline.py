@@ -764,7 +764,7 @@ def _resolve_production(
     if production is None:
         return None
     if isinstance(production, str) and production in imported:
-        return production
+        return str(production)
     if not isinstance(production, str):
         raise EstimatorError(
             f"production must be an estimator key (e.g. 'statsmodels-sarimax'), got "

@@ -224,9 +224,16 @@ def _first_ragged_line(path: Path, *, short_only: bool = False) -> tuple[int, in
 
 def _ragged(where: str, line: int, count: int, expected: int) -> SeriesError:
     noun = "field" if count == 1 else "fields"
+    separator = (
+        " A header of one field often means the columns are separated by ';' or tabs (and "
+        "decimals written with commas): save the file with comma separators and decimal "
+        "points."
+        if expected == 1
+        else ""
+    )
     return SeriesError(
         f"Line {line} of {where} has {count} {noun}, but the header has {expected}. "
-        f"{_ONE_FIELD_PER_COLUMN}"
+        f"{_ONE_FIELD_PER_COLUMN}{separator}"
     )
 
 

@@ -134,9 +134,10 @@ def check_levels(levels: Any) -> tuple[float, ...]:
             )
         if value <= 1.0:
             # 0.95 is a 95% interval written as a fraction far more often than a 0.95% one.
+            hint = f"; for {100 * value:g}% give {100 * value:g}" if value < 1.0 else ""
             raise SpecError(
-                f"levels are in percent, and {value:g} would be a {value:g}% interval; for "
-                f"{100 * value:g}% give {100 * value:g} (levels must exceed 1)."
+                f"levels are in percent, and {value:g} would be a {value:g}% interval{hint} "
+                "(levels must exceed 1 and stay below 100)."
             )
         values.append(value)
     if not values:

@@ -667,6 +667,14 @@ def test_cli_compare_models_reads_each_candidates_regressors(stationary_case, tm
     written = sorted(p.name for p in tmp_path.iterdir())
     assert written == ["choice.html", "choice.json", "choice.md", "data.csv", "future.csv"]
     assert "+x(price,promo)" in out.read_text()
+    import json
+
+    choice = json.loads(out.read_text())
+    assert choice["record"] == "forecastaudit-model-choice" and choice["created"]
+    assert choice["invocation"]["input_file"]["name"] == "data.csv"
+    assert choice["invocation"]["other_files"][0]["name"] == "future.csv"
+    prints = choice["fingerprints"]
+    assert len(prints) == 2 and len(set(prints.values())) == 2  # the regressors count
     # The price and promo columns are regressors, not the series: without --future the
     # candidate with regressors cannot forecast, a usage error with nothing written.
     out.unlink()
@@ -693,4 +701,8 @@ def test_future_regressor_values_are_in_the_record_and_their_change_is_named(
     assert second["forecasts"]["future_regressors"]["sha256"] != kept["sha256"]
     changes = fa.compare_records(record, second)
     assert changes.same_data  # the observed data are the same
-    assert any(line.startswith("future regressor values differ") for line in changes.changes)
+    (line,) = [c for c in changes.changes if c.startswith("future regressor values differ")]
+    assert "2024-10 (promo)" in line and "and 3 more" in line  # 9 of 12 were not planned
+    # The same values: no such note.
+    again = fa.compare_records(record, first.to_dict())
+    assert not [c for c in again.changes if c.startswith("future regressor")]

@@ -74,6 +74,10 @@ class _DefaultProduction(str):
 
     __slots__ = ()
 
+    def __reduce__(self) -> str:
+        # Unpickled (in a worker process) it is the same object, so it stays the default.
+        return "DEFAULT_PRODUCTION"
+
 
 #: Default of every ``production`` argument and option.
 DEFAULT_PRODUCTION: str = _DefaultProduction("statsmodels-sarimax")

@@ -290,7 +290,7 @@ def _breaches(gap: float, moved: Mapping[str, Mapping[str, float]], tol: Toleran
         if name == "sigma2":
             parts.append(
                 f"sigma2 {abs(d['difference']) / abs(d['reference']):.2%} apart > sigma2_rtol "
-                f"{tol.sigma2_rtol:g}"
+                f"{tol.sigma2_rtol:.2%}"
             )
         elif math.isfinite(d["in_standard_errors"]):
             parts.append(

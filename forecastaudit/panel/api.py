@@ -58,7 +58,7 @@ def independent_estimators(production: str | None = None) -> list[str]:
     keys = available_estimators()
     if production is not None and production not in keys:
         adapter_class(production)  # raises EstimatorError naming the known keys
-    ordered = ([production] if production else []) + [k for k in keys if k != production]
+    ordered = ([str(production)] if production else []) + [k for k in keys if k != production]
     chosen: dict[str, str] = {}
     for key in ordered:
         engine = adapter_class(key).engine

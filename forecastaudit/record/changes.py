@@ -234,17 +234,11 @@ def _setting_changes(old: dict[str, Any], new: dict[str, Any]) -> list[str]:
             f"forecastaudit {old['provenance']['forecastaudit']} -> "
             f"{new['provenance']['forecastaudit']}"
         )
-    moved = []
-    for name, item in sorted(new["tolerances"].items()):
+    for name in sorted(set(new["tolerances"]) | set(old["tolerances"])):
         before = old["tolerances"].get(name, {}).get("value")
-        if before != item["value"]:
-            moved.append(f"tolerance {name} {before} -> {item['value']}")
-    if moved:
-        out += moved
-        out.append(
-            "the records state different tolerances: each change is judged by the stricter "
-            "of the two values"
-        )
+        after = new["tolerances"].get(name, {}).get("value")
+        if before != after:
+            out.append(f"tolerance {name} {before} -> {after}")
     for name in sorted(set(old["options"]) | set(new["options"])):
         if old["options"].get(name) != new["options"].get(name):
             out.append(
@@ -359,6 +353,54 @@ def stricter_tolerances(a: Mapping[str, Any], b: Mapping[str, Any]) -> Tolerance
 _LARGER_IS_STRICTER = frozenset({"min_independent_engines", "root_margin"})
 
 
+def _tolerance_basis(a: Mapping[str, Any], b: Mapping[str, Any], merged: bool) -> list[str]:
+    """How the changes were judged, when the records' tolerances differ."""
+    value = lambda r, n: (r.get("tolerances") or {}).get(n, {}).get("value")  # noqa: E731
+    names = set(a.get("tolerances") or {}) | set(b.get("tolerances") or {})
+    if not any(value(a, n) != value(b, n) for n in names):
+        return []
+    if merged:
+        return [
+            "the records state different tolerances: each change is judged by the stricter "
+            "of the two values"
+        ]
+    return ["the records state different tolerances: changes are judged by those given"]
+
+
+def _future_regressor_notes(
+    a: Mapping[str, Any], b: Mapping[str, Any], offset: int | None
+) -> list[str]:
+    """Whether the future regressor values the two records' forecasts assume differ, over
+    the periods both forecast (records made before they were kept say nothing)."""
+    fa_ = (a.get("forecasts") or {}).get("future_regressors")
+    fb_ = (b.get("forecasts") or {}).get("future_regressors")
+    if not fa_ or not fb_:
+        return []
+    if fa_.get("columns") != fb_.get("columns"):
+        return [
+            f"future regressors differ: columns {', '.join(fa_.get('columns') or [])} -> "
+            f"{', '.join(fb_.get('columns') or [])}"
+        ]
+    old = dict(zip(fa_.get("periods") or [], fa_.get("values") or [], strict=False))
+    moved = []
+    for period, values in zip(fb_.get("periods") or [], fb_.get("values") or [], strict=False):
+        if period in old and old[period] != values:
+            columns = [
+                c
+                for c, x, y in zip(fa_["columns"], old[period], values, strict=False)
+                if x != y
+            ]
+            moved.append(f"{period} ({', '.join(columns)})")
+    if not moved:
+        return []
+    shown = "; ".join(moved[:6]) + (f"; and {len(moved) - 6} more" if len(moved) > 6 else "")
+    return [
+        "future regressor values differ for periods both records forecast: "
+        f"{shown}. Those forecasts assume different values, so their changes are not "
+        "numerics alone"
+    ]
+
+
 def compare_loaded(
     a: dict[str, Any], b: dict[str, Any], tolerances: Tolerances | None = None
 ) -> RecordChanges:
@@ -368,6 +410,7 @@ def compare_loaded(
     ``spec``, ``estimates``, ``likelihoods``, ``forecasts``, ``holdout``, ``reference``
     standard errors, ``tolerances``, ``options``, ``provenance`` and ``verdict``.
     """
+    merged = tolerances is None
     if tolerances is None:
         tolerances = stricter_tolerances(a, b)
     tol = tolerances
@@ -395,12 +438,8 @@ def compare_loaded(
             "forecasts not compared: the series end at periods that cannot be matched "
             f"({a['provenance']['data'].get('last')} and {b['provenance']['data'].get('last')})"
         )
-    elif offset:
-        notes.append(
-            f"forecasts compared by target period: the new series ends {offset} period(s) "
-            "after the old one"
-        )
-    if not same_sample:
+    holdouts = all(((r.get("holdout") or {}).get("accuracy")) for r in (a, b))
+    if not same_sample and holdouts:
         notes.append(
             "holdout accuracy not compared: the records are of different data, so they hold "
             "out different observations, and their accuracies measure the data as much as the "
@@ -412,12 +451,7 @@ def compare_loaded(
             "fitted on; forecast tolerances are fractions of the reference forecast standard "
             "error there"
         )
-    future = lambda r: r["provenance"]["data"].get("future_regressors_sha256")  # noqa: E731
-    if future(a) != future(b):
-        notes.append(
-            "future regressor values differ: the records' forecasts assume different future "
-            "values of the regressors, so their forecast changes are not numerics alone"
-        )
+    notes += _future_regressor_notes(a, b, offset)
     se = b.get("reference", {}).get("standard_errors", {}) or {}
     rows: list[dict | None] = []
     compared_forecasts = 0
@@ -463,13 +497,20 @@ def compare_loaded(
             ref = hb[name] if hb[name] is not None else 0.0
             allowed = tol.accuracy_rtol * abs(ref)
             rows.append(_row(key, f"holdout_{name}", ha[name], hb[name], allowed))
-    if offset and not compared_forecasts:
-        horizon = a.get("forecasts", {}).get("horizon")
+    if offset and compared_forecasts:
         notes.append(
-            f"no forecast compared: the old record forecasts {horizon} period(s) after "
-            f"{a['provenance']['data'].get('last')}, and the new series ends {offset} "
-            "period(s) later, so no period is forecast by both (audit the old data with a "
-            "longer horizon to compare forecasts across a data update)"
+            f"forecasts compared by target period: the new series ends {abs(offset)} "
+            f"period(s) {'after' if offset > 0 else 'before'} the old one"
+        )
+    elif offset:
+        earlier = a if offset > 0 else b
+        horizon = earlier.get("forecasts", {}).get("horizon")
+        which = "old" if offset > 0 else "new"
+        notes.append(
+            f"no forecast compared: the {which} record forecasts {horizon} period(s) after "
+            f"{earlier['provenance']['data'].get('last')}, and the other series ends "
+            f"{abs(offset)} period(s) later, so no period is forecast by both (audit the "
+            f"{which} data with a longer horizon to compare forecasts across a data update)"
         )
     table = pd.DataFrame([r for r in rows if r is not None], columns=_COLUMNS)
     same_spec = a["spec"]["text"] == b["spec"]["text"]
@@ -482,7 +523,7 @@ def compare_loaded(
         table=table,
         same_data=fingerprint(a) == fingerprint(b),
         same_spec=same_spec,
-        changes=notes + _setting_changes(a, b),
+        changes=notes + _setting_changes(a, b) + _tolerance_basis(a, b, merged),
         old_verdict=a["verdict"],
         new_verdict=b["verdict"],
         old_signoff=dict(a["signoff"]) if isinstance(a.get("signoff"), Mapping) else None,
