@@ -981,19 +981,21 @@ def forecast_values_table(report: AuditResult) -> Table | None:
         fc = report.forecasts.get(key)
         if fc is None:
             continue
-        label = _plain_text(key)
+        # Short headings keep the table on the page; the caption names the estimator.
+        prefix = "reference " if key == "reference" else ""
         frame[f"{key}:point"] = fc.median
-        columns.append((f"{key}:point", f"{label} point", "column"))
+        columns.append((f"{key}:point", f"{prefix}point", "column"))
         if fc.lower:
             level = max(fc.lower)
             frame[f"{key}:lower"] = fc.lower[level]
             frame[f"{key}:upper"] = fc.upper[level]
-            columns.append((f"{key}:lower", f"{label} {level:g}% lower", "column"))
-            columns.append((f"{key}:upper", f"{label} {level:g}% upper", "column"))
+            columns.append((f"{key}:lower", f"{prefix}{level:g}% lower", "column"))
+            columns.append((f"{key}:upper", f"{prefix}{level:g}% upper", "column"))
     role = "the production estimator" if shown == production else "the first estimator"
     notes = [
-        f"The forecasts of {role} ({_plain_text(shown)}) and at the reference optimum, on the "
-        "original scale. Every estimator's forecasts are in the record (forecasts)."
+        f"The forecasts of {role} ({_plain_text(shown)}: point, lower, upper) and at the "
+        "reference optimum (reference ...), on the original scale. Every estimator's "
+        "forecasts are in the record (forecasts)."
     ]
     point = report.options.get("point_forecast")
     if point:
@@ -1001,7 +1003,10 @@ def forecast_values_table(report: AuditResult) -> Table | None:
     return frame_table(
         frame,
         id="forecast-values",
-        caption="Forecasts: point forecasts and intervals by period",
+        caption=(
+            f"Forecasts by period: {_plain_text(shown)} and the reference optimum, point "
+            "forecasts and intervals"
+        ),
         corner="step",
         columns=columns,
         notes=notes,
