@@ -18,18 +18,13 @@ import pandas as pd
 from forecastaudit.diagnosis.findings import Finding
 from forecastaudit.diagnosis.tolerances import Tolerances
 from forecastaudit.errors import SpecError
+from forecastaudit.jsonutil import to_plain
 from forecastaudit.search.common import _json, _records
 from forecastaudit.spec import ModelSpec
 from forecastaudit.validation import echo, whole_number
 
 
 # ====================================================================== model choice
-def _json_ready(value: Any) -> Any:
-    from forecastaudit.jsonutil import to_plain
-
-    return to_plain(value)
-
-
 @dataclass
 class ModelChoiceResult:
     """The result of :func:`compare_models`.
@@ -89,12 +84,12 @@ class ModelChoiceResult:
         return {
             "record": "forecastaudit-model-choice",
             "created": self.created,
-            **({"provenance": _json_ready(provenance(first))} if first is not None else {}),
+            **({"provenance": to_plain(provenance(first))} if first is not None else {}),
             # Each candidate's data fingerprint (with the regressor columns it uses).
             "fingerprints": {
                 label: report.series.fingerprint for label, report in self.reports.items()
             },
-            **({"invocation": _json_ready(self.invocation)} if self.invocation else {}),
+            **({"invocation": to_plain(self.invocation)} if self.invocation else {}),
             "models": [s.to_dict() for s in self.specs],
             "holdout": self.holdout,
             "origins": self.origins,

@@ -166,6 +166,14 @@ class PreparedSeries:
             return rng[1:]
         return pd.RangeIndex(len(self), len(self) + steps)
 
+    def future_labels(self, steps: int) -> list[str]:
+        """Display labels of the ``steps`` forecast periods (:meth:`future_index`), or the
+        step numbers 1..steps when the index cannot be extended (labels are a courtesy)."""
+        try:
+            return self.display_labels(self.future_index(steps))
+        except (ValueError, TypeError, AttributeError, OverflowError):
+            return [str(h) for h in range(1, steps + 1)]
+
     def labels(self) -> list[str]:
         """Index labels as strings (positions when there is no time index)."""
         if self.index is None:

@@ -213,13 +213,15 @@ def _first_cause(result: Any) -> Any:
     top = [f for f in result.findings if f.severity == severity]
     if not top:
         return None
+    from forecastaudit.diagnosis.diagnose import CAUSE_KINDS
+
     production = result.production
 
     # A cause of a disagreement (material first) says more than a symptom of it such as a
     # convergence code: "stopped short, material" rather than "did not report convergence".
     def weight(f: Any) -> tuple[int, int]:
         material = bool(((f.values or {}).get("materiality") or {}).get("material"))
-        return (0 if f.kind in _DISAGREEMENT_CAUSES else 1, 0 if material else 1)
+        return (0 if f.kind in CAUSE_KINDS else 1, 0 if material else 1)
 
     ranked = sorted(top, key=weight)  # stable: the audit's order within a rank
     for f in ranked:
@@ -228,12 +230,6 @@ def _first_cause(result: Any) -> Any:
         ):
             return f
     return ranked[0]
-
-
-#: Findings that explain why an estimate differs from the optimum.
-_DISAGREEMENT_CAUSES = frozenset(
-    {"stopped-short", "objective-differs", "short-of-optimum", "flat-likelihood"}
-)
 
 
 def audit_series(job: SeriesJob) -> dict[str, Any]:

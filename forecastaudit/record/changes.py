@@ -386,9 +386,7 @@ def _future_regressor_notes(
     for period, values in zip(fb_.get("periods") or [], fb_.get("values") or [], strict=False):
         if period in old and old[period] != values:
             columns = [
-                c
-                for c, x, y in zip(fa_["columns"], old[period], values, strict=False)
-                if x != y
+                c for c, x, y in zip(fa_["columns"], old[period], values, strict=False) if x != y
             ]
             moved.append(f"{period} ({', '.join(columns)})")
     if not moved:

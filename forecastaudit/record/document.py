@@ -72,10 +72,7 @@ def _future_regressors(report: AuditResult) -> dict[str, Any] | None:
     values = getattr(report, "future_regressors", None)
     if values is None:
         return None
-    try:
-        periods = report.series.display_labels(report.series.future_index(len(values)))
-    except Exception:  # labels are a courtesy; step numbers always work
-        periods = [str(h) for h in range(1, len(values) + 1)]
+    periods = report.series.future_labels(len(values))
     return {
         "columns": list(report.spec.regressors),
         "periods": [str(p) for p in periods],

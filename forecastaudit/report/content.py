@@ -971,10 +971,7 @@ def forecast_values_table(report: AuditResult) -> Table | None:
     production = report.production
     shown = production if production in report.forecasts else keys[0]
     steps = len(report.forecasts[shown].median)
-    try:
-        periods = report.series.display_labels(report.series.future_index(steps))
-    except Exception:  # labels are a courtesy; step numbers always work
-        periods = [str(h) for h in range(1, steps + 1)]
+    periods = report.series.future_labels(steps)
     frame = pd.DataFrame({"period": periods[:steps]}, index=pd.RangeIndex(1, steps + 1))
     columns: list[tuple[str, str, str]] = [("period", "period", "text")]
     for key in dict.fromkeys([shown, "reference"]):
@@ -1019,10 +1016,7 @@ def future_regressors_table(report: AuditResult) -> Table | None:
     if values is None:
         return None
     steps = len(values)
-    try:
-        periods = report.series.display_labels(report.series.future_index(steps))
-    except Exception:  # labels are a courtesy; step numbers always work
-        periods = [str(h) for h in range(1, steps + 1)]
+    periods = report.series.future_labels(steps)
     frame = pd.DataFrame(np.asarray(values), columns=list(report.spec.regressors))
     frame.index = pd.RangeIndex(1, steps + 1)
     frame.insert(0, "period", periods[:steps])
@@ -1052,10 +1046,7 @@ def forecast_table(report: AuditResult) -> Table | None:
     width_columns = [c for c in spread.columns if str(c).startswith("interval_width_")]
     level = width_columns[0][len("interval_width_") :] if width_columns else ""
     steps = len(spread)
-    try:
-        future = report.series.display_labels(report.series.future_index(steps))
-    except Exception:  # labels are a courtesy; a horizon number always works
-        future = [str(h) for h in spread.index]
+    future = report.series.future_labels(steps)
     frame = spread.copy()
     frame.insert(0, "period", future[: len(frame)])
     engines = spread.attrs.get("engines", [])
